@@ -1,0 +1,177 @@
+"""Whole-trace divergence check: stream frames, re-solve, classify, count.
+
+Kinds and severities (the names are part of the JSON output):
+``invalid`` error, ``start_overlap`` warning, ``penetration`` error, ``tunneling`` error,
+``snag`` warning, ``mismatch`` warning, ``discontinuity`` info.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .solver import RowResults, SolverSettings, solve_rows
+from .trace import Trace
+
+KINDS = ("invalid", "start_overlap", "penetration", "tunneling", "snag", "mismatch", "discontinuity")
+SEVERITY = {"invalid": "error", "start_overlap": "warning", "penetration": "error", "tunneling": "error",
+            "snag": "warning", "mismatch": "warning", "discontinuity": "info"}
+SEVERITY_RANK = {"info": 1, "warning": 2, "error": 3}
+DISCONTINUITY_BIT = KINDS.index("discontinuity")
+DEFAULT_FAIL_ON = tuple(k for k in KINDS if SEVERITY[k] == "error")
+
+
+@dataclass
+class Divergence:
+    """One kind found on one entity-frame. Positions in world units; ``error`` in world units
+    (None for ``invalid``); ``passes`` lists the reference passes as dicts t / normal / voxel."""
+
+    frame: int
+    entity: int
+    kind: str
+    severity: str
+    recorded_end: list
+    reference_end: list
+    error: float | None
+    passes: list
+
+    def as_json(self) -> dict:
+        return {"frame": self.frame, "entity": self.entity, "kind": self.kind, "severity": self.severity,
+                "recorded_end": self.recorded_end, "reference_end": self.reference_end, "error": self.error,
+                "passes": self.passes}
+
+
+@dataclass
+class TraceReport:
+    """Result of checking one trace: exact counts per kind, the first ``limit`` divergences."""
+
+    path: str
+    frames: int
+    entities: int
+    entity_frames: int
+    counts: dict = field(default_factory=lambda: {k: 0 for k in KINDS})
+    divergences: list = field(default_factory=list)
+    cancelled: bool = False
+
+    def failing(self, kinds) -> int:
+        return sum(self.counts[k] for k in kinds)
+
+    def as_json(self) -> dict:
+        return {"path": self.path, "frames": self.frames, "entities": self.entities,
+                "entity_frames": self.entity_frames, "counts": dict(self.counts),
+                "divergences": [d.as_json() for d in self.divergences]}
+
+
+@dataclass
+class BlockResult:
+    """Results of one streamed segment, handed to ``on_block`` listeners (e.g. the viewer).
+
+    Attributes:
+        frame, column: int64 (M,) frame index and entity column of each solved row.
+        rows: RowResults of those rows, with the discontinuity bit merged into ``rows.flags``.
+    """
+
+    frame: np.ndarray
+    column: np.ndarray
+    rows: RowResults
+
+
+def _finite_list(v) -> list:
+    return [float(x) if np.isfinite(x) else None for x in np.asarray(v, np.float64)]
+
+
+def pass_list(rows: RowResults, i: int) -> list:
+    """Reference passes of row ``i`` as JSON-ready dicts."""
+    out = []
+    for k in range(int(rows.npass[i])):
+        hit = rows.block[i, k] >= 0
+        out.append({"t": float(rows.toi[i, k]), "normal": [int(x) for x in rows.normal[i, k]],
+                    "voxel": [int(x) for x in rows.voxel[i, k]] if hit else None})
+    return out
+
+
+def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit: int = 1000,
+                progress=None, on_block=None, should_stop=None, rows_per_block: int = 1 << 17) -> TraceReport:
+    """Re-solve every active entity-frame of ``trace`` and classify the recorded run.
+
+    Frames stream in blocks of about ``rows_per_block`` entity-frames; only counts and the first
+    ``limit`` divergences are kept. ``progress(frames_done, frames_total)`` is called per block,
+    ``on_block(BlockResult)`` per solved segment, and ``should_stop()`` may return True to cancel
+    (the report then has ``cancelled`` set).
+    """
+    report = TraceReport(trace.path, trace.frame_count, trace.entity_count, 0)
+    world = trace.world()
+    tol = settings.tolerance * trace.voxel_size
+    edit_frames = world.edit_frames()
+    prev_end = None  # float64 (N, 3) recorded end of the previous frame
+    prev_active = None
+    for blk in trace.iter_frames(rows_per_block):
+        if should_stop is not None and should_stop():
+            report.cancelled = True
+            break
+        n = blk.f1 - blk.f0
+        # Discontinuity across consecutive frames, frame-major like the solved rows.
+        ends = np.asarray(blk.end, np.float64)
+        starts = np.asarray(blk.start, np.float64)
+        pe = np.concatenate([prev_end[None], ends[:-1]]) if prev_end is not None else None
+        pa = np.concatenate([prev_active[None], blk.active[:-1]]) if prev_active is not None else None
+        disc = np.zeros(blk.active.shape, bool)
+        gap = np.full(blk.active.shape, np.nan)
+        if pe is not None:
+            with np.errstate(invalid="ignore", over="ignore"):
+                gap = np.sqrt(((starts - pe) ** 2).sum(axis=-1))
+            disc = pa & blk.active & (gap > tol)
+        else:
+            with np.errstate(invalid="ignore", over="ignore"):
+                gap[1:] = np.sqrt(((starts[1:] - ends[:-1]) ** 2).sum(axis=-1))
+            disc[1:] = blk.active[1:] & blk.active[:-1] & (gap[1:] > tol)
+        prev_end = ends[-1]
+        prev_active = blk.active[-1]
+        # Split the block where world edits apply, so each segment sees one world.
+        cuts = edit_frames[(edit_frames > blk.f0) & (edit_frames < blk.f1)]
+        bounds = [blk.f0, *cuts.tolist(), blk.f1]
+        for a, b in zip(bounds[:-1], bounds[1:]):
+            world.advance_to(a)
+            fr, col = np.nonzero(blk.active[a - blk.f0:b - blk.f0])
+            fr = fr + (a - blk.f0)
+            if not len(fr):
+                continue
+            rows = solve_rows(world, blk.start[fr, col], blk.motion[fr, col], blk.end[fr, col],
+                              blk.half[fr, col], settings)
+            d = disc[fr, col]
+            rows.flags |= d.astype(np.int32) << DISCONTINUITY_BIT
+            rows.error[d, DISCONTINUITY_BIT] = gap[fr, col][d]
+            report.entity_frames += len(fr)
+            _count(report, rows.flags)
+            _collect(report, trace, rows, blk.end[fr, col], fr + blk.f0, col, limit)
+            if on_block is not None:
+                on_block(BlockResult(fr + blk.f0, col, rows))
+        if progress is not None:
+            progress(blk.f1, trace.frame_count)
+    return report
+
+
+def _count(report: TraceReport, flags: np.ndarray):
+    nz = flags[flags != 0]
+    if not len(nz):
+        return
+    for k, kind in enumerate(KINDS):
+        report.counts[kind] += int(np.count_nonzero(nz & (1 << k)))
+
+
+def _collect(report: TraceReport, trace: Trace, rows: RowResults, rec_end, frames, cols, limit: int):
+    if len(report.divergences) >= limit:
+        return
+    for i in np.flatnonzero(rows.flags):
+        f = int(rows.flags[i])
+        for k, kind in enumerate(KINDS):
+            if not f & (1 << k):
+                continue
+            if len(report.divergences) >= limit:
+                return
+            err = float(rows.error[i, k])
+            report.divergences.append(Divergence(
+                int(frames[i]), int(trace.ids[cols[i]]), kind, SEVERITY[kind],
+                _finite_list(rec_end[i]), _finite_list(rows.ref_end[i]),
+                err if np.isfinite(err) else None, pass_list(rows, i)))
+

@@ -1,0 +1,46 @@
+"""Typed errors raised by the core and caught at the CLI/GUI boundary.
+
+Every error carries the data needed to print one line that names the file and the
+problem; nothing in the core prints or exits.
+"""
+from __future__ import annotations
+
+
+class ResweepError(Exception):
+    """Base class for every error the core raises on purpose."""
+
+
+class TraceFormatError(ResweepError):
+    """A trace file is unreadable or breaks the trace format.
+
+    Attributes:
+        path: the file as the user named it.
+        dataset: the HDF5 object at fault (e.g. ``"/frames/start"``), or None for the file itself.
+        reason: what is wrong, in plain words, without the path.
+    """
+
+    def __init__(self, path, dataset: str | None, reason: str):
+        self.path = str(path)
+        self.dataset = dataset
+        self.reason = reason
+        super().__init__(self.one_line())
+
+    def one_line(self) -> str:
+        where = f"{self.path}: {self.dataset}" if self.dataset else self.path
+        return f"{where}: {self.reason}"
+
+
+class SettingsError(ResweepError):
+    """A solver or check setting is out of range.
+
+    Attributes:
+        name: the setting (e.g. ``"tolerance"``).
+        value: the rejected value.
+        reason: why it is rejected.
+    """
+
+    def __init__(self, name: str, value, reason: str):
+        self.name = name
+        self.value = value
+        self.reason = reason
+        super().__init__(f"{name}={value!r}: {reason}")

@@ -1,0 +1,122 @@
+"""Numba kernels that read the voxel world: chunk lookup, voxel ranges, overlap depth.
+
+The world reaches kernels as the tuple of ``VoxelWorld.kernel_args``:
+``(keys, slot, blocks, S, lo, hi, box_start, boxes, reach, voxel_size)``; its float members
+(``boxes``, ``voxel_size``) set the float type every kernel computes in.
+"""
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+from .nb_float import fl
+
+_H1, _H2, _H3 = 73856093, 19349663, 83492791  # must match world.hash_chunk
+
+
+@njit(cache=True, inline="always")
+def chunk_lookup(keys, slot, cx, cy, cz):
+    """Index of chunk (cx, cy, cz) or -1 (linear probing, see world.build_hash)."""
+    mask = slot.shape[0] - 1
+    h = ((cx * _H1) ^ (cy * _H2) ^ (cz * _H3)) & mask
+    while slot[h] != -1:
+        if keys[h, 0] == cx and keys[h, 1] == cy and keys[h, 2] == cz:
+            return slot[h]
+        h = (h + 1) & mask
+    return -1
+
+
+@njit(cache=True, inline="always")
+def voxel_range(a, b, vs, reach, wlo, whi):
+    """Inclusive voxel index range [i0, i1] whose cells can touch world interval [a, b] on one axis.
+
+    ``a``, ``b`` must be finite (rows with non-finite values are rejected before any solve).
+
+    ``reach`` widens by a voxel for shapes past their cell; the range is clamped to the world, so a
+    hostile or huge motion never scans more than the chunks that exist. Empty when i0 > i1.
+    """
+    # Widen by a rounding margin so the broad phase is always a superset of what the narrow
+    # phase (computed in the same float type) can accept, even far from the origin in float32.
+    ua = a / vs
+    ub = b / vs
+    fa = np.floor(ua - (abs(ua) * fl(vs, 5e-7) + fl(vs, 1e-3)))
+    fb = np.floor(ub + (abs(ub) * fl(vs, 5e-7) + fl(vs, 1e-3)))
+    lo_f = fl(vs, wlo - reach)
+    hi_f = fl(vs, whi - 1 + reach)
+    if fa > hi_f or fb < lo_f:
+        return np.int64(1), np.int64(0)
+    if fa < lo_f:
+        fa = lo_f
+    if fb > hi_f:
+        fb = hi_f
+    i0 = max(np.int64(fa) - reach, wlo)
+    i1 = min(np.int64(fb) + reach, whi - 1)
+    return i0, i1
+
+
+@njit(cache=True, inline="always")
+def box_range(c, h, world):
+    """Voxel ranges (i0, i1, j0, j1, k0, k1) of the box [c - h, c + h]."""
+    vs = world[9]
+    reach = world[8]
+    wlo = world[4]
+    whi = world[5]
+    i0, i1 = voxel_range(c[0] - h[0], c[0] + h[0], vs, reach, wlo[0], whi[0])
+    j0, j1 = voxel_range(c[1] - h[1], c[1] + h[1], vs, reach, wlo[1], whi[1])
+    k0, k1 = voxel_range(c[2] - h[2], c[2] + h[2], vs, reach, wlo[2], whi[2])
+    return i0, i1, j0, j1, k0, k1
+
+
+@njit(cache=True, inline="always")
+def sweep_range(p, r, h, world):
+    """Voxel ranges of the swept bounding box of the box at p and at p + r."""
+    vs = world[9]
+    reach = world[8]
+    wlo = world[4]
+    whi = world[5]
+    i0, i1 = voxel_range(min(p[0], p[0] + r[0]) - h[0], max(p[0], p[0] + r[0]) + h[0], vs, reach, wlo[0], whi[0])
+    j0, j1 = voxel_range(min(p[1], p[1] + r[1]) - h[1], max(p[1], p[1] + r[1]) + h[1], vs, reach, wlo[1], whi[1])
+    k0, k1 = voxel_range(min(p[2], p[2] + r[2]) - h[2], max(p[2], p[2] + r[2]) + h[2], vs, reach, wlo[2], whi[2])
+    return i0, i1, j0, j1, k0, k1
+
+
+@njit(cache=True)
+def overlap_depth(c, h, world):
+    """Deepest interior overlap of the box (centre c, half extents h) with solid.
+
+    Args:
+        c, h: float (3,) world units.
+    Returns:
+        depth (float, world units): max over solid boxes of the least per-axis overlap; 0 when
+        interiors are apart (touching faces do not count).
+    """
+    keys, slot, blocks, S, wlo, whi, bstart, bboxes, reach, vs = world
+    best = fl(vs, 0)
+    i0, i1, j0, j1, k0, k1 = box_range(c, h, world)
+    if i0 > i1 or j0 > j1 or k0 > k1:
+        return best
+    for cx in range(i0 // S, i1 // S + 1):
+        for cy in range(j0 // S, j1 // S + 1):
+            for cz in range(k0 // S, k1 // S + 1):
+                ci = chunk_lookup(keys, slot, cx, cy, cz)
+                if ci < 0:
+                    continue
+                bx, by, bz = cx * S, cy * S, cz * S
+                for x in range(max(i0, bx), min(i1, bx + S - 1) + 1):
+                    for y in range(max(j0, by), min(j1, by + S - 1) + 1):
+                        for z in range(max(k0, bz), min(k1, bz + S - 1) + 1):
+                            t = blocks[ci, x - bx, y - by, z - bz]
+                            if t == 0:
+                                continue
+                            v = (fl(vs, x), fl(vs, y), fl(vs, z))
+                            for b in range(bstart[t], bstart[t + 1]):
+                                d = fl(vs, np.inf)
+                                for a in range(3):
+                                    lo = (v[a] + bboxes[b, a]) * vs
+                                    hi = (v[a] + bboxes[b, a + 3]) * vs
+                                    o = min(c[a] + h[a], hi) - max(c[a] - h[a], lo)
+                                    if o < d:
+                                        d = o
+                                if d > best:
+                                    best = d
+    return best

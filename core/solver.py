@@ -1,0 +1,128 @@
+"""Python entry points to the reference solver: settings and row solves on plain arrays."""
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+
+import numpy as np
+
+from . import nb_check
+from .errors import SettingsError
+from .nb_sweep import CLEAR, HIT, STARTED_INSIDE
+from .world import VoxelWorld
+
+PRECISIONS = ("float64", "float32")
+STATE_NAMES = {CLEAR: "clear", HIT: "hit", STARTED_INSIDE: "started_inside"}
+
+
+@dataclass(frozen=True)
+class SolverSettings:
+    """Reference solver and comparison settings.
+
+    Attributes:
+        tolerance: voxels; recorded and reference ends closer than this agree (default 0.01).
+        skin: voxels kept between the box and a hit face (default 0.001).
+        passes: sweep-and-slide passes per frame, 1..8 (default 3: in 3-D the slide of the slide can
+            still be blocked).
+        precision: "float64" or "float32"; float32 solves stay float32 throughout.
+    """
+
+    tolerance: float = 0.01
+    skin: float = 0.001
+    passes: int = 3
+    precision: str = "float64"
+
+    def __post_init__(self):
+        if not (np.isfinite(self.tolerance) and self.tolerance >= 0):
+            raise SettingsError("tolerance", self.tolerance, "must be a finite number >= 0 (voxels)")
+        if not (np.isfinite(self.skin) and 0 <= self.skin < 0.5):
+            raise SettingsError("skin", self.skin, "must be a number in [0, 0.5) (voxels)")
+        if not (isinstance(self.passes, (int, np.integer)) and 1 <= self.passes <= 8):
+            raise SettingsError("passes", self.passes, "must be an integer in 1..8")
+        if self.precision not in PRECISIONS:
+            raise SettingsError("precision", self.precision, "must be float32 or float64")
+
+    @property
+    def dtype(self) -> np.dtype:
+        return np.dtype(self.precision)
+
+    def as_dict(self) -> dict:
+        return asdict(self)
+
+
+@dataclass
+class RowResults:
+    """Per-row output of a re-solve (M rows, P = settings.passes).
+
+    Attributes:
+        ref_end: float (M, 3) reference end centre, world units (NaN for invalid rows).
+        npass: int8 (M,) passes run; state: int8 (M,) CLEAR / HIT / STARTED_INSIDE.
+        toi: float (M, P) time of impact per pass, fraction of that pass's motion (1 = clear).
+        normal: int8 (M, P, 3) hit normal (axis unit vectors; several set when faces tied).
+        voxel: int64 (M, P, 3) hit voxel; block: int32 (M, P) hit block type, -1 if clear.
+        candidates: int32 (M, P) solid boxes tested per pass.
+        flags: int32 (M,) bit k set when divergence kind k applies (see check.KINDS).
+        error: float (M, 7) error value per kind, world units, NaN where it does not apply.
+    """
+
+    ref_end: np.ndarray
+    npass: np.ndarray
+    state: np.ndarray
+    toi: np.ndarray
+    normal: np.ndarray
+    voxel: np.ndarray
+    block: np.ndarray
+    candidates: np.ndarray
+    flags: np.ndarray
+    error: np.ndarray
+
+    @classmethod
+    def empty(cls, m: int, passes: int, dtype) -> "RowResults":
+        return cls(np.zeros((m, 3), dtype), np.zeros(m, np.int8), np.zeros(m, np.int8),
+                   np.ones((m, passes), dtype), np.zeros((m, passes, 3), np.int8),
+                   np.zeros((m, passes, 3), np.int64), np.full((m, passes), -1, np.int32),
+                   np.zeros((m, passes), np.int32), np.zeros(m, np.int32), np.zeros((m, 7), dtype))
+
+
+def _rows(a, dtype) -> np.ndarray:
+    return np.ascontiguousarray(np.asarray(a).reshape(-1, 3), dtype=dtype)
+
+
+def solve_rows(world: VoxelWorld, start, motion, recorded_end, half, settings: SolverSettings) -> RowResults:
+    """Re-solve and classify M entity-frames against the world as it stands now.
+
+    Args:
+        start, motion, recorded_end, half: float (M, 3) world units (any float dtype; converted
+            to the settings' precision). ``recorded_end`` may be ``start + motion`` when only the
+            reference is wanted.
+    """
+    dt = settings.dtype
+    ft = dt.type
+    s, m, e, h = (_rows(a, dt) for a in (start, motion, recorded_end, half))
+    out = RowResults.empty(len(s), settings.passes, dt)
+    if not len(s):
+        return out
+    vs = world.voxel_size
+    nb_check.check_rows(s, m, e, h, world.kernel_args(dt), ft(settings.skin * vs), np.int64(settings.passes),
+               ft(settings.tolerance * vs), out.ref_end, out.npass, out.state, out.toi, out.normal,
+               out.voxel, out.block, out.candidates, out.flags, out.error)
+    return out
+
+
+def overlap_depths(world: VoxelWorld, centre, half, precision: str = "float64") -> np.ndarray:
+    """Deepest interior overlap with solid of each box: centre, half float (M, 3) -> (M,) world units."""
+    dt = np.dtype(precision)
+    c, h = _rows(centre, dt), _rows(half, dt)
+    out = np.zeros(len(c), dt)
+    if len(c):
+        nb_check.depth_rows(c, h, world.kernel_args(dt), out)
+    return out
+
+
+def warm_up(precision: str = "float64") -> None:
+    """Compile (or load from the on-disk cache) the kernels of one precision by solving one row."""
+    from .shapes import unit_cube_shapes
+    w = VoxelWorld(1, np.zeros((1, 3), np.int64), np.ones((1, 1, 1, 1), np.uint16), unit_cube_shapes(2))
+    row = np.array([[0.5, 2.0, 0.5]])
+    solve_rows(w, row, np.array([[0.0, -2.0, 0.0]]), row, np.full((1, 3), 0.25),
+               SolverSettings(precision=precision))
+    overlap_depths(w, row, np.full((1, 3), 0.25), precision)
