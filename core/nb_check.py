@@ -26,9 +26,9 @@ def row_valid(s, m, e, h):
     return True
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def check_rows(start, motion, rec_end, half, world, skin, passes, tol,
-               ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, flags, err):
+               ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, flags, err):
     """Re-solve rows and classify the recorded end against the reference.
 
     Args:
@@ -37,7 +37,7 @@ def check_rows(start, motion, rec_end, half, world, skin, passes, tol,
     Outputs (preallocated, written per row):
         ref_end float (M, 3); npass int8 (M,) passes run; state int8 (M,) CLEAR/HIT/STARTED_INSIDE;
         t_out float (M, P); n_out int8 (M, P, 3); v_out int64 (M, P, 3); type_out int32 (M, P);
-        cand_out int32 (M, P); flags int32 (M,) bit k set when kind k applies;
+        cand_out int32 (M, P); pts float (M, P+1, 3) slide path points; flags int32 (M,) bit k set when kind k applies;
         err float (M, 7) error value per kind (world units; NaN where it does not apply).
     """
     vs = world[9]
@@ -55,9 +55,11 @@ def check_rows(start, motion, rec_end, half, world, skin, passes, tol,
             state[i] = CLEAR
             for a in range(3):
                 ref_end[i, a] = fl(vs, np.nan)
+                for k in range(pts.shape[1]):
+                    pts[i, k, a] = fl(vs, np.nan)
             continue
         run, hit = solve_row(s, m, h, world, skin, passes, ref_end[i], t_out[i], n_out[i],
-                             v_out[i], type_out[i], cand_out[i])
+                             v_out[i], type_out[i], cand_out[i], pts[i])
         npass[i] = run
         f = 0
         d0 = overlap_depth(s, h, world)
@@ -114,7 +116,7 @@ def check_rows(start, motion, rec_end, half, world, skin, passes, tol,
         flags[i] = f
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, parallel=True, nogil=True)
 def depth_rows(centre, half, world, out):
     """Overlap depth of many boxes: centre, half float (M, 3) -> out float (M,), world units."""
     for i in prange(centre.shape[0]):

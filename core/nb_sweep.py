@@ -144,7 +144,7 @@ def sweep_pass(p, r, h, world):
 
 
 @njit(cache=True)
-def solve_row(p0, m, h, world, skin, passes, end, t_out, n_out, v_out, type_out, cand_out):
+def solve_row(p0, m, h, world, skin, passes, end, t_out, n_out, v_out, type_out, cand_out, pts):
     """Solve one entity-frame: up to ``passes`` sweep-and-slide passes from ``p0`` along ``m``.
 
     Args:
@@ -155,6 +155,8 @@ def solve_row(p0, m, h, world, skin, passes, end, t_out, n_out, v_out, type_out,
         n_out: int8 (P, 3) out, hit normal per pass (a unit axis, or several if faces tied).
         v_out: int64 (P, 3) out, hit voxel; type_out int32 (P,) block type or -1 if clear;
         cand_out: int32 (P,) solid boxes tested.
+        pts: float (P+1, 3) out, centre at the start of each pass and at the end; rows after the
+            last pass repeat the end (the slide path).
     Returns:
         (passes_run, any_hit)
     """
@@ -164,6 +166,8 @@ def solve_row(p0, m, h, world, skin, passes, end, t_out, n_out, v_out, type_out,
     any_hit = False
     run = 0
     for k in range(passes):
+        for a in range(3):
+            pts[k, a] = p[a]
         if r[0] == 0 and r[1] == 0 and r[2] == 0:
             break
         tmin, axes, hx, hy, hz, htype, cand, inside = sweep_pass(p, r, h, world)
@@ -200,6 +204,11 @@ def solve_row(p0, m, h, world, skin, passes, end, t_out, n_out, v_out, type_out,
             p[a] = q
     for a in range(3):
         end[a] = p[a]
+    for k in range(run + 1, passes + 1):
+        for a in range(3):
+            pts[k, a] = p[a]
+    for a in range(3):
+        pts[run, a] = p[a]
     return run, any_hit
 
 

@@ -60,6 +60,8 @@ class RowResults:
         normal: int8 (M, P, 3) hit normal (axis unit vectors; several set when faces tied).
         voxel: int64 (M, P, 3) hit voxel; block: int32 (M, P) hit block type, -1 if clear.
         candidates: int32 (M, P) solid boxes tested per pass.
+        points: float (M, P+1, 3) centre at the start of each pass, then the end (the slide path;
+            entries after the last pass run repeat the end).
         flags: int32 (M,) bit k set when divergence kind k applies (see check.KINDS).
         error: float (M, 7) error value per kind, world units, NaN where it does not apply.
     """
@@ -72,6 +74,7 @@ class RowResults:
     voxel: np.ndarray
     block: np.ndarray
     candidates: np.ndarray
+    points: np.ndarray
     flags: np.ndarray
     error: np.ndarray
 
@@ -80,7 +83,8 @@ class RowResults:
         return cls(np.zeros((m, 3), dtype), np.zeros(m, np.int8), np.zeros(m, np.int8),
                    np.ones((m, passes), dtype), np.zeros((m, passes, 3), np.int8),
                    np.zeros((m, passes, 3), np.int64), np.full((m, passes), -1, np.int32),
-                   np.zeros((m, passes), np.int32), np.zeros(m, np.int32), np.zeros((m, 7), dtype))
+                   np.zeros((m, passes), np.int32), np.zeros((m, passes + 1, 3), dtype),
+                   np.zeros(m, np.int32), np.zeros((m, 7), dtype))
 
 
 def _rows(a, dtype) -> np.ndarray:
@@ -104,7 +108,7 @@ def solve_rows(world: VoxelWorld, start, motion, recorded_end, half, settings: S
     vs = world.voxel_size
     nb_check.check_rows(s, m, e, h, world.kernel_args(dt), ft(settings.skin * vs), np.int64(settings.passes),
                ft(settings.tolerance * vs), out.ref_end, out.npass, out.state, out.toi, out.normal,
-               out.voxel, out.block, out.candidates, out.flags, out.error)
+               out.voxel, out.block, out.candidates, out.points, out.flags, out.error)
     return out
 
 
