@@ -1,7 +1,6 @@
 """``resweep check``: re-solve traces, print a summary or JSON, set the exit status."""
 from __future__ import annotations
 
-import json
 import sys
 import threading
 
@@ -11,6 +10,7 @@ from resweep.core.solver import SolverSettings, warm_up
 from resweep.core.trace import open_trace
 
 from .cli import EXIT_DIVERGED, EXIT_OK, EXIT_USAGE
+from .output import emit_json
 
 SHOWN = 20  # divergences listed in the human summary
 
@@ -94,16 +94,8 @@ def run_check(args) -> int:
     if args.json:
         doc = {"version": 1, "settings": {**settings.as_dict(), "fail_on": list(fail_on), "limit": args.limit},
                "traces": [r.as_json() for r in reports]}
-        text = json.dumps(doc, indent=1, allow_nan=False)
-        if json_to_stdout:
-            sys.stdout.write(text + "\n")
-        else:
-            try:
-                with open(args.json, "w", encoding="utf-8") as fh:
-                    fh.write(text + "\n")
-            except OSError as exc:
-                sys.stderr.write(f"resweep check: {args.json}: cannot write JSON report: {exc.strerror or exc}\n")
-                return EXIT_USAGE
+        if not emit_json(doc, args.json, "check"):
+            return EXIT_USAGE
     return status
 
 

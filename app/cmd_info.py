@@ -1,29 +1,21 @@
 """``resweep info``: what a trace holds and what is wrong with it."""
 from __future__ import annotations
 
-import json
 import sys
 
 from resweep.core.inspect import describe
 from resweep.core.trace import open_trace
 
 from .cli import EXIT_OK, EXIT_USAGE
+from .output import emit_json
 
 
 def run_info(args) -> int:
     with open_trace(args.trace) as trace:
         info = describe(trace)
     if args.json:
-        text = json.dumps(info, indent=1)
-        if args.json == "-":
-            sys.stdout.write(text + "\n")
-        else:
-            try:
-                with open(args.json, "w", encoding="utf-8") as fh:
-                    fh.write(text + "\n")
-            except OSError as exc:
-                sys.stderr.write(f"resweep info: {args.json}: cannot write: {exc.strerror or exc}\n")
-                return EXIT_USAGE
+        if not emit_json(info, args.json, "info"):
+            return EXIT_USAGE
         return EXIT_OK
     w = sys.stdout.write
     w(f"{info['path']}: resweep trace v{info['version']}" + (f" - {info['title']}" if info["title"] else "") + "\n")
