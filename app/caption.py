@@ -23,7 +23,9 @@ def caption_lines(session, state, col: int) -> list[str]:
     tr = session.trace
     last = tr.frame_count - 1
     lines = [f"{session.name}   frame {state.frame} of 0..{last}   t = {state.time:.3f} s"]
-    who = f"entity {int(tr.ids[col])} {tr.names[col]}"
+    who = f"entity {int(tr.ids[col])}"
+    if tr.names[col] != who:  # traces without names call entities "entity <id>" already
+        who += f" {tr.names[col]}"
     if not state.active[col]:
         lines.append(who + "   (not active at this frame)")
         lines.append("nothing solved")
