@@ -54,9 +54,10 @@ class EntitiesPanel(QWidget):
         hh.setMinimumSectionSize(24)
         hh.setSectionResizeMode(QHeaderView.ResizeMode.Fixed)
         hh.setSectionResizeMode(self.NAME, QHeaderView.ResizeMode.Stretch)
+        fm = self.table.fontMetrics()
         self.table.setColumnWidth(self.ID, 44)
-        for c in range(len(KINDS)):
-            self.table.setColumnWidth(2 + c, 38)
+        for c, k in enumerate(KINDS):
+            self.table.setColumnWidth(2 + c, max(34, fm.horizontalAdvance(SHORT[k]) + 16))
         self.table.verticalHeader().setDefaultSectionSize(24)
         self.only_diverging = QCheckBox("diverging only", self)
         self.only_diverging.setToolTip("Hide entities with no divergence (so far)")
@@ -119,6 +120,21 @@ class EntitiesPanel(QWidget):
                              + ("" if self.flags.complete else f" · {done}/{self.flags.frame_count} frames solved"))
         self._apply_filter()
 
+    def show_frame(self, flags, active):
+        """Mark who diverges at the current frame (bold, in its worst severity) and who is inactive
+        (grey italics). flags int32 (N,), active bool (N,)."""
+        for r in range(min(self.table.rowCount(), len(flags))):
+            it = self.table.item(r, self.NAME)
+            kinds = [k for i, k in enumerate(KINDS) if int(flags[r]) & (1 << i)] if active[r] else []
+            worst = max((SEVERITY_RANK[SEVERITY[k]] for k in kinds), default=0)
+            font = it.font()
+            font.setBold(bool(kinds))
+            font.setItalic(not active[r])
+            it.setFont(font)
+            colour = SEVERITY_COLOURS[worst] if kinds else QColor("#d9e2e8" if active[r] else "#5d6a74")
+            it.setForeground(QBrush(colour))
+            it.setToolTip("this frame: " + (", ".join(kinds) if kinds else "agrees" if active[r] else "inactive"))
+
     def _apply_filter(self):
         div = self.flags.diverging_columns() if self.flags is not None else None
         for r in range(self.table.rowCount()):
@@ -159,9 +175,19 @@ class FramePanel(QTextBrowser):
         self.facts: FrameFacts | None = None
         self.show_facts(None)
 
-    def show_facts(self, facts: FrameFacts | None, note: str = ""):
+    def show_facts(self, facts: FrameFacts | None, note: str = "", legend=()):
+        """``legend``: (label, rgb 0..255) of what the viewport draws, shown under the numbers."""
         self.facts = facts
-        self.setHtml(facts_html(facts, note))
+        self.setHtml(facts_html(facts, note) + legend_html(legend))
+
+
+def legend_html(legend) -> str:
+    if not legend:
+        return ""
+    items = " &nbsp; ".join(f"<span style='color:#{r:02x}{g:02x}{b:02x}'>&#9632;</span>&nbsp;"
+                            f"{html.escape(label).replace(' ', '&nbsp;')}"
+                            for label, (r, g, b) in legend)
+    return f"<p style='color:#aab6bf'>{items}</p>"
 
 
 def _chip(kind: str) -> str:

@@ -324,7 +324,11 @@ class MainWindow(QMainWindow):
             self.frame_panel.show_facts(None, f"frame {self.pb.frame} cannot be shown: {error_line(exc)}")
             self.status(f"frame {self.pb.frame}: {error_line(exc)}")
             return
-        self.frame_panel.show_facts(facts)
+        legend = []
+        if self.viewport is not None:
+            legend = list(self.viewport.legend) + list(getattr(self.viewport, "block_legend", []))
+        self.frame_panel.show_facts(facts, legend=legend)
+        self.entities.show_frame(self.state.rows.flags, self.state.active)
 
     def _toggle_opts(self):
         if self.view_options is None:

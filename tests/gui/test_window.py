@@ -347,3 +347,23 @@ def test_cancel_and_close_stop_the_background_solve(qtbot, window, long_trace):
     job = window.worker._solve
     window.close()
     assert not job.thread.is_alive()
+
+
+def test_selecting_an_entity_focuses_it_and_diverging_only_hides_the_clean_ones(qtbot, window):
+    open_and_wait(qtbot, window, DEMO, frame=60, entity=102)
+    flags = core_flags(DEMO)
+    before = grab(window)
+    table = window.entities.table
+    rect = table.visualItemRect(table.item(2, 1))  # climber
+    qtbot.mouseClick(table.viewport(), Qt.MouseButton.LeftButton, pos=rect.center())
+    assert window.pb.focus == 2
+    assert window.frame_panel.toPlainText().startswith("103 climber")
+    assert np.abs(grab(window) - before).max(axis=-1).mean() > 5  # the camera moved to the climber
+    window.entities.only_diverging.setChecked(True)
+    hidden = [r for r in range(table.rowCount()) if table.isRowHidden(r)]
+    assert hidden == [c for c in range(flags.shape[1]) if not flags[:, c].any()] == [3]  # the crate
+    # Counts per kind are the core's.
+    for c in range(flags.shape[1]):
+        for k, kind in enumerate(KINDS):
+            n = int(np.count_nonzero(flags[:, c] & (1 << k)))
+            assert table.item(c, 2 + k).text() == (str(n) if n else "·")
