@@ -10,7 +10,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
-from PyQt6.QtCore import QSettings, Qt, QTimer
+from PyQt6.QtCore import QEvent, QObject, QSettings, Qt
 from PyQt6.QtGui import QAction, QColor, QGuiApplication, QImage, QKeySequence, QPainter, QPalette
 from PyQt6.QtWidgets import (QApplication, QDialog, QDockWidget, QFileDialog, QHeaderView, QLabel, QMainWindow,
                              QMessageBox, QProgressBar, QPushButton, QTableWidget, QTableWidgetItem, QVBoxLayout,
@@ -89,6 +89,10 @@ class MainWindow(QMainWindow):
             from .viewport import ViewOptions, Viewport
             self.plotter = QtInteractor(centre)
             self.plotter.setFocusPolicy(Qt.FocusPolicy.ClickFocus)
+            # VTK's own letter keys (q/e quit, 3 stereo, s/w surface style...) would fight the
+            # window's shortcuts; the window's actions still see every key first.
+            self._key_guard = _SwallowKeys(self.plotter)
+            self.plotter.installEventFilter(self._key_guard)
             self.viewport = Viewport(self.plotter)
             self.view_options = ViewOptions()
             lay.addWidget(self.plotter, 1)
@@ -472,6 +476,13 @@ class MainWindow(QMainWindow):
         if self.plotter is not None:
             self.plotter.close()
         super().closeEvent(event)
+
+
+class _SwallowKeys(QObject):
+    """Event filter that keeps key presses away from the VTK interactor (mouse still works)."""
+
+    def eventFilter(self, obj, event):
+        return event.type() in (QEvent.Type.KeyPress, QEvent.Type.KeyRelease)
 
 
 def dropped_path(mime) -> str | None:

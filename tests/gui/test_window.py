@@ -367,3 +367,15 @@ def test_selecting_an_entity_focuses_it_and_diverging_only_hides_the_clean_ones(
         for k, kind in enumerate(KINDS):
             n = int(np.count_nonzero(flags[:, c] & (1 << k)))
             assert table.item(c, 2 + k).text() == (str(n) if n else "·")
+
+
+def test_letter_keys_in_the_viewport_are_the_windows_not_vtks(qtbot, demo_window):
+    win = demo_window
+    win.plotter.setFocus()
+    qtbot.waitUntil(lambda: QApplication.focusWidget() is win.plotter, timeout=5000)
+    before = grab(win)
+    for key in (Qt.Key.Key_Q, Qt.Key.Key_S, Qt.Key.Key_R):  # VTK would quit / restyle / reset here
+        qtbot.keyClick(win.plotter, key)
+    assert win.isVisible() and np.array_equal(grab(win), before)
+    qtbot.keyClick(win.plotter, Qt.Key.Key_Right)  # window shortcuts still work from the viewport
+    assert win.pb.frame == 1
