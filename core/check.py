@@ -10,6 +10,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from . import nb_block
 from .solver import RowResults, SolverSettings, solve_rows
 from .trace import Trace
 
@@ -94,39 +95,26 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
                 progress=None, on_block=None, should_stop=None, rows_per_block: int = 1 << 17) -> TraceReport:
     """Re-solve every active entity-frame of ``trace`` and classify the recorded run.
 
-    Frames stream in blocks of about ``rows_per_block`` entity-frames; only counts and the first
-    ``limit`` divergences are kept. ``progress(frames_done, frames_total)`` is called per block,
-    ``on_block(BlockResult)`` per solved segment, and ``should_stop()`` may return True to cancel
-    (the report then has ``cancelled`` set).
+    Frames stream in blocks of about ``rows_per_block`` entity-frames (the next block is read
+    while this one is solved); only counts and the first ``limit`` divergences are kept, so
+    memory does not grow with the trace. ``progress(frames_done, frames_total)`` is called per
+    block, ``on_block(BlockResult)`` per solved segment, and ``should_stop()`` may return True to
+    cancel (the report then has ``cancelled`` set). World edits are applied as the stream passes
+    their frame (:meth:`VoxelWorld.advance_to`), never by rebuilding the world.
     """
     report = TraceReport(trace.path, trace.frame_count, trace.entity_count, 0)
     world = trace.world()
     tol = settings.tolerance * trace.voxel_size
+    dt = settings.dtype
     edit_frames = world.edit_frames()
-    prev_end = None  # float64 (N, 3) recorded end of the previous frame
-    prev_active = None
-    for blk in trace.iter_frames(rows_per_block):
+    N = trace.entity_count
+    prev_end = np.zeros((N, 3))  # float64 recorded end of the frame before the block
+    prev_active = np.zeros(N, bool)
+    has_prev = False
+    for blk in trace.iter_frames(rows_per_block, prefetch=True):
         if should_stop is not None and should_stop():
             report.cancelled = True
             break
-        n = blk.f1 - blk.f0
-        # Discontinuity across consecutive frames, frame-major like the solved rows.
-        ends = np.asarray(blk.end, np.float64)
-        starts = np.asarray(blk.start, np.float64)
-        pe = np.concatenate([prev_end[None], ends[:-1]]) if prev_end is not None else None
-        pa = np.concatenate([prev_active[None], blk.active[:-1]]) if prev_active is not None else None
-        disc = np.zeros(blk.active.shape, bool)
-        gap = np.full(blk.active.shape, np.nan)
-        if pe is not None:
-            with np.errstate(invalid="ignore", over="ignore"):
-                gap = np.sqrt(((starts - pe) ** 2).sum(axis=-1))
-            disc = pa & blk.active & (gap > tol)
-        else:
-            with np.errstate(invalid="ignore", over="ignore"):
-                gap[1:] = np.sqrt(((starts[1:] - ends[:-1]) ** 2).sum(axis=-1))
-            disc[1:] = blk.active[1:] & blk.active[:-1] & (gap[1:] > tol)
-        prev_end = ends[-1]
-        prev_active = blk.active[-1]
         # Split the block where world edits apply, so each segment sees one world.
         cuts = edit_frames[(edit_frames > blk.f0) & (edit_frames < blk.f1)]
         bounds = [blk.f0, *cuts.tolist(), blk.f1]
@@ -136,16 +124,23 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
             fr = fr + (a - blk.f0)
             if not len(fr):
                 continue
-            rows = solve_rows(world, blk.start[fr, col], blk.motion[fr, col], blk.end[fr, col],
-                              blk.half[fr, col], settings)
-            d = disc[fr, col]
-            rows.flags |= d.astype(np.int32) << DISCONTINUITY_BIT
-            rows.error[d, DISCONTINUITY_BIT] = gap[fr, col][d]
-            report.entity_frames += len(fr)
+            M = len(fr)
+            start, motion, end = np.empty((M, 3), dt), np.empty((M, 3), dt), np.empty((M, 3), dt)
+            gap, disc = np.empty(M), np.empty(M, bool)
+            nb_block.gather_rows(blk.start, blk.motion, blk.end, blk.active, prev_end, prev_active, has_prev,
+                                 fr, col, tol, start, motion, end, gap, disc)
+            half = blk.half[0][col] if blk.half.strides[0] == 0 else blk.half[fr, col]
+            rows = solve_rows(world, start, motion, end, half, settings)
+            rows.flags |= disc.astype(np.int32) << DISCONTINUITY_BIT
+            rows.error[disc, DISCONTINUITY_BIT] = gap[disc]
+            report.entity_frames += M
             _count(report, rows.flags)
-            _collect(report, trace, rows, blk.end[fr, col], fr + blk.f0, col, limit)
+            _collect(report, trace, rows, blk.end, fr, col, blk.f0, limit)
             if on_block is not None:
                 on_block(BlockResult(fr + blk.f0, col, rows))
+        prev_end = np.asarray(blk.end[-1], np.float64)
+        prev_active = np.ascontiguousarray(blk.active[-1])
+        has_prev = True
         if progress is not None:
             progress(blk.f1, trace.frame_count)
     return report
@@ -159,7 +154,9 @@ def _count(report: TraceReport, flags: np.ndarray):
         report.counts[kind] += int(np.count_nonzero(nz & (1 << k)))
 
 
-def _collect(report: TraceReport, trace: Trace, rows: RowResults, rec_end, frames, cols, limit: int):
+def _collect(report: TraceReport, trace: Trace, rows: RowResults, block_end, fr, cols, f0: int, limit: int):
+    """Append the divergences of solved rows (frames ``f0 + fr``, columns ``cols``) up to ``limit``;
+    recorded ends are read from the block (file dtype) only for the rows kept."""
     if len(report.divergences) >= limit:
         return
     for i in np.flatnonzero(rows.flags):
@@ -171,7 +168,7 @@ def _collect(report: TraceReport, trace: Trace, rows: RowResults, rec_end, frame
                 return
             err = float(rows.error[i, k])
             report.divergences.append(Divergence(
-                int(frames[i]), int(trace.ids[cols[i]]), kind, SEVERITY[kind],
-                _finite_list(rec_end[i]), _finite_list(rows.ref_end[i]),
+                int(f0 + fr[i]), int(trace.ids[cols[i]]), kind, SEVERITY[kind],
+                _finite_list(block_end[fr[i], cols[i]]), _finite_list(rows.ref_end[i]),
                 err if np.isfinite(err) else None, pass_list(rows, i)))
 

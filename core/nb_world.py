@@ -1,8 +1,11 @@
-"""Numba kernels that read the voxel world: chunk lookup, voxel ranges, overlap depth.
+"""Numba kernels that read the voxel world: chunk lookup, voxel ranges, cell scans, overlap depth.
 
-The world reaches kernels as the tuple of ``VoxelWorld.kernel_args``:
-``(keys, slot, blocks, S, lo, hi, box_start, boxes, reach, voxel_size)``; its float members
-(``boxes``, ``voxel_size``) set the float type every kernel computes in.
+The world reaches kernels as the tuple built by ``solver.kernel_world``:
+``(keys, slot, blocks, S, lo, hi, box_start, boxes, reach, voxel_size, extent)`` where ``lo``,
+``hi`` are int64 (3,) (voxel bounds of all chunks), ``boxes`` float (B, 6) and ``extent`` float
+(6,) (least box min, greatest box max per axis, voxel-local units). Its float members set
+the float type every kernel computes in. Points and sizes travel as float 3-tuples (kept in
+registers, no array views).
 """
 from __future__ import annotations
 
@@ -10,6 +13,7 @@ import numpy as np
 from numba import njit
 
 from .nb_float import fl
+from .nb_jit import hot
 
 _H1, _H2, _H3 = 73856093, 19349663, 83492791  # must match world.hash_chunk
 
@@ -56,7 +60,7 @@ def voxel_range(a, b, vs, reach, wlo, whi):
 
 @njit(cache=True, inline="always")
 def box_range(c, h, world):
-    """Voxel ranges (i0, i1, j0, j1, k0, k1) of the box [c - h, c + h]."""
+    """Voxel ranges (i0, i1, j0, j1, k0, k1) of the box [c - h, c + h]; c, h float 3-tuples."""
     vs = world[9]
     reach = world[8]
     wlo = world[4]
@@ -69,7 +73,7 @@ def box_range(c, h, world):
 
 @njit(cache=True, inline="always")
 def sweep_range(p, r, h, world):
-    """Voxel ranges of the swept bounding box of the box at p and at p + r."""
+    """Voxel ranges of the swept bounding box of the box at p and at p + r (float 3-tuples)."""
     vs = world[9]
     reach = world[8]
     wlo = world[4]
@@ -80,17 +84,38 @@ def sweep_range(p, r, h, world):
     return i0, i1, j0, j1, k0, k1
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
+def box_corners(bboxes, b):
+    """Row ``b`` of the (B, 6) box table as a 6-tuple (min xyz, max xyz; voxel-local)."""
+    return bboxes[b, 0], bboxes[b, 1], bboxes[b, 2], bboxes[b, 3], bboxes[b, 4], bboxes[b, 5]
+
+
+@njit(cache=True, inline="always")
+def box_depth(c, h, v, bb, vs):
+    """Least per-axis interior overlap of the box (c, h) with block box ``bb`` of voxel ``v``."""
+    d = fl(vs, np.inf)
+    for a in range(3):
+        lo = (v[a] + bb[a]) * vs
+        hi = (v[a] + bb[a + 3]) * vs
+        o = min(c[a] + h[a], hi) - max(c[a] - h[a], lo)
+        if o < d:
+            d = o
+    return d
+
+
+@hot
 def overlap_depth(c, h, world):
     """Deepest interior overlap of the box (centre c, half extents h) with solid.
 
     Args:
-        c, h: float (3,) world units.
+        c, h: float 3-tuples, world units.
     Returns:
         depth (float, world units): max over solid boxes of the least per-axis overlap; 0 when
         interiors are apart (touching faces do not count).
     """
-    keys, slot, blocks, S, wlo, whi, bstart, bboxes, reach, vs = world
+    keys, slot, blocks, S = world[0], world[1], world[2], world[3]
+    bstart, bboxes = world[6], world[7]
+    vs = world[9]
     best = fl(vs, 0)
     i0, i1, j0, j1, k0, k1 = box_range(c, h, world)
     if i0 > i1 or j0 > j1 or k0 > k1:
@@ -110,13 +135,7 @@ def overlap_depth(c, h, world):
                                 continue
                             v = (fl(vs, x), fl(vs, y), fl(vs, z))
                             for b in range(bstart[t], bstart[t + 1]):
-                                d = fl(vs, np.inf)
-                                for a in range(3):
-                                    lo = (v[a] + bboxes[b, a]) * vs
-                                    hi = (v[a] + bboxes[b, a + 3]) * vs
-                                    o = min(c[a] + h[a], hi) - max(c[a] - h[a], lo)
-                                    if o < d:
-                                        d = o
+                                d = box_depth(c, h, v, box_corners(bboxes, b), vs)
                                 if d > best:
                                     best = d
     return best

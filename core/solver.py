@@ -1,14 +1,20 @@
 """Python entry points to the reference solver: settings and row solves on plain arrays."""
 from __future__ import annotations
 
+import weakref
 from dataclasses import asdict, dataclass
 
 import numpy as np
 
 from . import nb_check
 from .errors import SettingsError
+from .nb_solve import AUTO, SCAN, WALK
 from .nb_sweep import CLEAR, HIT, STARTED_INSIDE
 from .world import VoxelWorld
+
+#: Broad phases accepted by :func:`solve_rows` (see nb_solve): results are identical, only the
+#: ``candidates`` counts and the speed differ.
+BROAD_PHASES = {"scan": SCAN, "walk": WALK, "auto": AUTO}
 
 PRECISIONS = ("float64", "float32")
 STATE_NAMES = {CLEAR: "clear", HIT: "hit", STARTED_INSIDE: "started_inside"}
@@ -59,7 +65,10 @@ class RowResults:
         toi: float (M, P) time of impact per pass, fraction of that pass's motion (1 = clear).
         normal: int8 (M, P, 3) hit normal (axis unit vectors; several set when faces tied).
         voxel: int64 (M, P, 3) hit voxel; block: int32 (M, P) hit block type, -1 if clear.
-        candidates: int32 (M, P) solid boxes tested per pass.
+        candidates: int32 (M, P) solid boxes the narrow phase tested per pass. This depends on the
+            broad phase (``solve_rows(broad=...)``): the swept-box scan tests every box in the
+            swept bounding box, the walk of long motions only boxes it could not rule out first;
+            every other field is identical for all broad phases.
         points: float (M, P+1, 3) centre at the start of each pass, then the end (the slide path;
             entries after the last pass run repeat the end).
         flags: int32 (M,) bit k set when divergence kind k applies (see check.KINDS).
@@ -91,13 +100,44 @@ def _rows(a, dtype) -> np.ndarray:
     return np.ascontiguousarray(np.asarray(a).reshape(-1, 3), dtype=dtype)
 
 
-def solve_rows(world: VoxelWorld, start, motion, recorded_end, half, settings: SolverSettings) -> RowResults:
+_WORLDS: "weakref.WeakKeyDictionary[VoxelWorld, dict]" = weakref.WeakKeyDictionary()
+
+
+def kernel_world(world: VoxelWorld, dtype) -> tuple:
+    """The world as the tuple the numba kernels read (layout in nb_world), floats in ``dtype``.
+
+    Cached per world and dtype: the arrays are shared with ``world`` (its blocks are edited in
+    place, so the tuple follows :meth:`VoxelWorld.advance_to` without being rebuilt).
+    """
+    dt = np.dtype(dtype)
+    shapes = world.shapes
+    sources = (world.keys, world.slot, world.blocks, shapes)
+    per = _WORLDS.setdefault(world, {})
+    got = per.get(dt)
+    if got is not None and all(x is y for x, y in zip(got[0], sources)):
+        return got[1]
+    ft = dt.type
+    boxes = np.ascontiguousarray(shapes.boxes, dtype=dt).reshape(-1, 6)
+    # Least box min and greatest box max per axis bound every block's shape (the walk relies on it).
+    ext = boxes[:, :3].min(axis=0).tolist() + boxes[:, 3:].max(axis=0).tolist() if len(boxes) else [0, 0, 0, 1, 1, 1]
+    args = (world.keys, world.slot, world.blocks, np.int64(world.chunk_size),
+            np.asarray(world.lo, np.int64).copy(), np.asarray(world.hi, np.int64).copy(),
+            np.ascontiguousarray(shapes.box_start, np.int64), boxes, np.int64(shapes.reach),
+            ft(world.voxel_size), np.asarray(ext, dt))
+    per[dt] = (sources, args)
+    return args
+
+
+def solve_rows(world: VoxelWorld, start, motion, recorded_end, half, settings: SolverSettings,
+               broad: str = "auto") -> RowResults:
     """Re-solve and classify M entity-frames against the world as it stands now.
 
     Args:
         start, motion, recorded_end, half: float (M, 3) world units (any float dtype; converted
             to the settings' precision). ``recorded_end`` may be ``start + motion`` when only the
             reference is wanted.
+        broad: "auto" (default: scan short motions' swept boxes, walk long ones), "scan" (always
+            the whole swept bounding box) or "walk" (always the walk); see ``BROAD_PHASES``.
     """
     dt = settings.dtype
     ft = dt.type
@@ -106,9 +146,10 @@ def solve_rows(world: VoxelWorld, start, motion, recorded_end, half, settings: S
     if not len(s):
         return out
     vs = world.voxel_size
-    nb_check.check_rows(s, m, e, h, world.kernel_args(dt), ft(settings.skin * vs), np.int64(settings.passes),
-               ft(settings.tolerance * vs), out.ref_end, out.npass, out.state, out.toi, out.normal,
-               out.voxel, out.block, out.candidates, out.points, out.flags, out.error)
+    nb_check.check_rows(s, m, e, h, kernel_world(world, dt), ft(settings.skin * vs), np.int64(settings.passes),
+                        ft(settings.tolerance * vs), np.int64(BROAD_PHASES[broad]), out.ref_end, out.npass,
+                        out.state, out.toi, out.normal, out.voxel, out.block, out.candidates, out.points,
+                        out.flags, out.error)
     return out
 
 
@@ -118,7 +159,7 @@ def overlap_depths(world: VoxelWorld, centre, half, precision: str = "float64") 
     c, h = _rows(centre, dt), _rows(half, dt)
     out = np.zeros(len(c), dt)
     if len(c):
-        nb_check.depth_rows(c, h, world.kernel_args(dt), out)
+        nb_check.depth_rows(c, h, kernel_world(world, dt), out)
     return out
 
 

@@ -276,15 +276,38 @@ class Trace:
         return FrameBlock(f0, f1, start, motion, end, active, half)
 
     def block_frames(self, rows: int = 1 << 17) -> int:
-        """Frames per streamed block so that one block holds about ``rows`` entity-frames."""
-        return max(1, min(4096, rows // max(1, self.entity_count)))
+        """Frames per streamed block so that one block holds about ``rows`` entity-frames.
 
-    def iter_frames(self, rows: int = 1 << 17, f0: int = 0, f1: int | None = None):
-        """Yield :class:`FrameBlock` s covering ``[f0, f1)`` in bounded blocks."""
+        Rounded down to whole storage chunks of the frame datasets when a block spans several,
+        so every compressed chunk is read and decompressed once.
+        """
+        step = max(1, min(4096, rows // max(1, self.entity_count)))
+        chunks = self._ds["start"].chunks
+        if chunks and step >= chunks[0]:
+            step -= step % chunks[0]
+        return step
+
+    def iter_frames(self, rows: int = 1 << 17, f0: int = 0, f1: int | None = None, prefetch: bool = False):
+        """Yield :class:`FrameBlock` s covering ``[f0, f1)`` in bounded blocks.
+
+        With ``prefetch`` the next block is read on a background thread while the caller works
+        on the current one (at most two blocks are held; read errors surface in the caller).
+        """
         f1 = self.frame_count if f1 is None else min(f1, self.frame_count)
         step = self.block_frames(rows)
-        for a in range(f0, f1, step):
-            yield self.frames(a, min(a + step, f1))
+        firsts = range(f0, f1, step)
+        if not prefetch or len(firsts) < 2:
+            for a in firsts:
+                yield self.frames(a, min(a + step, f1))
+            return
+        from concurrent.futures import ThreadPoolExecutor
+        with ThreadPoolExecutor(1, thread_name_prefix="resweep-read") as pool:
+            ahead = pool.submit(self.frames, firsts[0], min(firsts[0] + step, f1))
+            for a in firsts[1:]:
+                blk = ahead.result()
+                ahead = pool.submit(self.frames, a, min(a + step, f1))
+                yield blk
+            yield ahead.result()
 
     def entity_index(self, entity_id: int) -> int:
         """Column of engine id ``entity_id``, or -1."""
