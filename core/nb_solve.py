@@ -10,7 +10,7 @@ from numba import njit
 
 from .nb_float import fl
 from .nb_jit import hot
-from .nb_sweep import ENTERS, FIRST_HIT, scan_cells, start_best
+from .nb_sweep import ENTERS, FIRST_HIT, blocked_axes, scan_cells, start_best
 from .nb_traverse import walk_cells
 from .nb_world import sweep_range
 
@@ -98,6 +98,7 @@ def solve_row(p0, m, h, world, skin, passes, broad, stack, i, ref_end, t_out, n_
             r = (fl(vs, 0), fl(vs, 0), fl(vs, 0))
             break
         any_hit = True
+        axes = blocked_axes(axes)
         rest = fl(vs, 1) - tmin
         q0, r0, n0 = slide_axis(p[0], r[0], tmin, rest, skin, axes & 1)
         q1, r1, n1 = slide_axis(p[1], r[1], tmin, rest, skin, axes & 2)

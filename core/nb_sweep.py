@@ -13,11 +13,13 @@ Method (published, common practice in games):
 
 Contact needs overlap of open interiors, so boxes that only touch never collide: a box sliding
 on a floor of many blocks never catches on the seams. Faces entered at exactly the same time all
-block their axes and the reported hit voxel is the lexicographically smallest among them, so the
+block their axes (an edge entry only when no face entry at that instant covers one of its axes, see
+``blocked_axes``) and the reported hit voxel is the lexicographically smallest among them, so the
 result never depends on the order candidates are visited in.
 
 The search state travels as the tuple ``best = (tmin, axes, hx, hy, hz, hb, htype, cand)``:
-entry time in [0, 1] (1 while clear), bitmask of blocked axes (0 while clear), hit voxel, box
+entry time in [0, 1] (1 while clear), entry axes of the tied boxes packed by ``pack_entry`` (0
+while clear; ``blocked_axes`` turns them into the axes to block), hit voxel, box
 index and block type (-1 while clear), and the count of boxes the narrow phase tested.
 """
 from __future__ import annotations
@@ -101,6 +103,34 @@ def start_best(vs):
 
 
 @njit(cache=True, inline="always")
+def pack_entry(eax):
+    """Search-state form of one box's entry axes: a face entry (one slab entered last) keeps its
+    axis bit (bits 0..2); an edge or corner entry (several slabs entered at the same instant) is
+    recorded as the flag bit ``8 << eax`` so :func:`blocked_axes` can tell the two apart."""
+    if eax == 1 or eax == 2 or eax == 4:
+        return np.int64(eax)
+    return np.int64(8) << eax
+
+
+@njit(cache=True, inline="always")
+def blocked_axes(packed):
+    """Axes a pass blocks, from the OR of ``pack_entry`` over every box tied at the minimum time.
+
+    Face contacts block their axes. An edge or corner contact blocks its axes only when no face
+    contact at the same instant already blocks one of them: blocking that axis alone stops the
+    motion that would enter the edge's box (the box then only touches it), which is what keeps a
+    box resting on a floor of many blocks from catching on the seams between them. Both sets are
+    ORs over all tied boxes, so the result never depends on visiting order.
+    """
+    faces = packed & 7
+    out = faces
+    for m in (3, 5, 6, 7):
+        if packed & (np.int64(8) << m) and not (m & faces):
+            out |= m
+    return out
+
+
+@njit(cache=True, inline="always")
 def narrow(p, r, h, v, bb, x, y, z, t, b, vs, best, mode):
     """Test block box ``b`` (type ``t``, corners ``bb``) of voxel (x, y, z) (``v`` its float
     corner) and fold the result into ``best``. In ``ENTERS`` mode ``axes`` becomes 1 once the path
@@ -120,9 +150,9 @@ def narrow(p, r, h, v, bb, x, y, z, t, b, vs, best, mode):
             return tmin, axes, hx, hy, hz, hb, htype, cand
         te = fl(vs, 0)
     if axes == 0 or te < tmin:
-        return te, eax, np.int64(x), np.int64(y), np.int64(z), np.int64(b), np.int64(t), cand
+        return te, pack_entry(eax), np.int64(x), np.int64(y), np.int64(z), np.int64(b), np.int64(t), cand
     if te == tmin:
-        axes |= eax
+        axes |= pack_entry(eax)
         if (x, y, z, b) < (hx, hy, hz, hb):
             return tmin, axes, np.int64(x), np.int64(y), np.int64(z), np.int64(b), np.int64(t), cand
     return tmin, axes, hx, hy, hz, hb, htype, cand

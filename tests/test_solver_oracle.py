@@ -10,8 +10,9 @@ and the slab test of sec. 5.3.3; sweep-and-slide is common practice) as the solv
   digs deeper along it, and is ignored when the motion leaves it (nb_sweep.inside_axis; its tie
   rules, which the docstring leaves open, are read from the code: the lowest axis wins a tie of
   depths, and a centred box counts its lower face as the nearer one);
-- the minimum entry time wins; all candidates tied at it block all their entry axes and the hit
-  voxel is the smallest (x, y, z, box index);
+- the minimum entry time wins; candidates tied at it entering one slab (a face) block that axis,
+  those entering several slabs at once (an edge or corner) block them only when no tied face
+  already blocks one of them; the hit voxel is the smallest (x, y, z, box index);
 - the box moves to the contact, stops ``skin`` short along each blocked axis but never behind the
   pass start, the blocked components are removed, the rest of the motion is scaled by 1 - t and the
   next pass runs, up to ``passes`` passes.
@@ -182,9 +183,17 @@ class Oracle:
             return ONE, 0, None, -1
         tmin = min(hits, key=lambda h: h[0].q)[0]
         tied = [h for h in hits if cmp(h[0], tmin) == 0]
-        axes = 0
+        # Face entries (one slab entered last) block their axis. An edge or corner entry (several
+        # slabs at the same instant) blocks its axes only if no face entry at that instant blocks
+        # one of them: blocking that axis alone leaves the box only touching the edge's block.
+        faces = 0
         for h in tied:
-            axes |= h[1]
+            if bin(h[1]).count("1") == 1:
+                faces |= h[1]
+        axes = faces
+        for h in tied:
+            if bin(h[1]).count("1") > 1 and not h[1] & faces:
+                axes |= h[1]
         first = min(tied, key=lambda h: h[2])
         return tmin, axes, first[2][:3], first[3]
 
