@@ -9,6 +9,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit, prange
 
+from . import nb_jit  # noqa: F401  (OpenMP wait policy before the first parallel launch)
+
 
 @njit(cache=True, parallel=True, nogil=True)
 def gather_rows(start, motion, end, active, prev_end, prev_active, has_prev, fr, col, tol,

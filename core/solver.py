@@ -163,11 +163,25 @@ def overlap_depths(world: VoxelWorld, centre, half, precision: str = "float64") 
     return out
 
 
-def warm_up(precision: str = "float64") -> None:
-    """Compile (or load from the on-disk cache) the kernels of one precision by solving one row."""
+def warm_up(precision: str = "float64", frame_dtype=None, depths: bool = False) -> None:
+    """Compile (or load from the on-disk cache) the kernels a check needs in one precision.
+
+    Args:
+        frame_dtype: also the row gather of frame blocks stored in this dtype (float32/float64).
+        depths: also :func:`overlap_depths` (not used by a check).
+    Only what is asked for is loaded: each cached kernel costs start-up time.
+    """
     from .shapes import unit_cube_shapes
     w = VoxelWorld(1, np.zeros((1, 3), np.int64), np.ones((1, 1, 1, 1), np.uint16), unit_cube_shapes(2))
     row = np.array([[0.5, 2.0, 0.5]])
     solve_rows(w, row, np.array([[0.0, -2.0, 0.0]]), row, np.full((1, 3), 0.25),
                SolverSettings(precision=precision))
-    overlap_depths(w, row, np.full((1, 3), 0.25), precision)
+    if depths:
+        overlap_depths(w, row, np.full((1, 3), 0.25), precision)
+    if frame_dtype is not None:
+        from . import nb_block
+        dt, ft = np.dtype(precision), np.dtype(frame_dtype)
+        one = np.zeros((1, 1, 3), ft)
+        nb_block.gather_rows(one, one, one, np.ones((1, 1), bool), np.zeros((1, 3)), np.zeros(1, bool), False,
+                             np.zeros(1, np.int64), np.zeros(1, np.int64), 0.01, np.zeros((1, 3), dt),
+                             np.zeros((1, 3), dt), np.zeros((1, 3), dt), np.zeros(1), np.zeros(1, bool))
