@@ -12,14 +12,54 @@ every kernel launch wait a scheduler time slice (measured: ~8 ms per launch inst
 whenever another process keeps one of two cores busy, so the idle threads are asked to sleep
 instead (``OMP_WAIT_POLICY=passive``) unless the user has chosen a policy. This must happen
 before the OpenMP runtime loads, i.e. before the first parallel kernel runs.
+
+numba invalidates a cached kernel only when the kernel's own source file changes, but our
+kernels inline code from the sibling ``nb_*`` modules: after an edit of ``nb_sweep.py`` the
+cached ``check_rows`` would still run the old narrow phase. :func:`drop_stale_caches` stamps the
+in-tree cache with a digest of all kernel sources and empties it when they change.
 """
 from __future__ import annotations
 
+import hashlib
 import os
+from pathlib import Path
 
 os.environ.setdefault("OMP_WAIT_POLICY", "passive")
 
 from numba import njit  # noqa: E402  (after the OpenMP setting)
+
+_HERE = Path(__file__).resolve().parent
+
+
+def drop_stale_caches(folder: Path = _HERE) -> bool:
+    """Remove numba's cached kernels of ``folder/nb_*.py`` when any of those sources changed.
+
+    Looks only at the in-tree cache (``__pycache__`` beside the sources, numba's default where
+    writable); installed copies do not change. Returns True when files were removed.
+    """
+    cache = folder / "__pycache__"
+    digest = hashlib.sha256()
+    for src in sorted(folder.glob("nb_*.py")):
+        digest.update(src.name.encode())
+        digest.update(src.read_bytes())
+    stamp = cache / "resweep-kernels.stamp"
+    try:
+        if stamp.read_text() == digest.hexdigest():
+            return False
+    except OSError:
+        pass
+    removed = False
+    try:
+        for f in list(cache.glob("nb_*.nbi")) + list(cache.glob("nb_*.nbc")):
+            f.unlink(missing_ok=True)
+            removed = True
+        stamp.write_text(digest.hexdigest())
+    except OSError:  # read-only install or no cache folder yet: nothing stale to drop
+        pass
+    return removed
+
+
+drop_stale_caches()
 
 try:
     from numba.core.options import TargetOptions

@@ -158,6 +158,25 @@ def narrow(p, r, h, v, bb, x, y, z, t, b, vs, best, mode):
     return tmin, axes, hx, hy, hz, hb, htype, cand
 
 
+@njit(cache=True, inline="always")
+def scan_chunk(p, r, h, world, ci, bx, by, bz, x0, x1, y0, y1, z0, z1, best, mode):
+    """Narrow phase against the solid boxes of the voxels [x0, x1] x [y0, y1] x [z0, z1], all in
+    chunk ``ci`` whose first voxel is (bx, by, bz). Arguments and result as :func:`scan_cells`."""
+    blocks, bstart, bboxes, vs = world[2], world[6], world[7], world[9]
+    for x in range(x0, x1 + 1):
+        for y in range(y0, y1 + 1):
+            for z in range(z0, z1 + 1):
+                t = blocks[ci, x - bx, y - by, z - bz]
+                if t == 0:
+                    continue
+                v = (fl(vs, x), fl(vs, y), fl(vs, z))
+                for b in range(bstart[t], bstart[t + 1]):
+                    best = narrow(p, r, h, v, box_corners(bboxes, b), x, y, z, t, b, vs, best, mode)
+                if mode == ENTERS and best[1] != 0:
+                    return best
+    return best
+
+
 @hot
 def scan_cells(p, r, h, world, i0, i1, j0, j1, k0, k1, best, mode):
     """Narrow phase against every solid box of the voxels [i0, i1] x [j0, j1] x [k0, k1].
@@ -168,9 +187,7 @@ def scan_cells(p, r, h, world, i0, i1, j0, j1, k0, k1, best, mode):
     Returns:
         the updated search state.
     """
-    keys, slot, blocks, S = world[0], world[1], world[2], world[3]
-    bstart, bboxes = world[6], world[7]
-    vs = world[9]
+    keys, slot, S = world[0], world[1], world[3]
     for cx in range(i0 // S, i1 // S + 1):
         for cy in range(j0 // S, j1 // S + 1):
             for cz in range(k0 // S, k1 // S + 1):
@@ -178,16 +195,8 @@ def scan_cells(p, r, h, world, i0, i1, j0, j1, k0, k1, best, mode):
                 if ci < 0:
                     continue
                 bx, by, bz = cx * S, cy * S, cz * S
-                for x in range(max(i0, bx), min(i1, bx + S - 1) + 1):
-                    for y in range(max(j0, by), min(j1, by + S - 1) + 1):
-                        for z in range(max(k0, bz), min(k1, bz + S - 1) + 1):
-                            t = blocks[ci, x - bx, y - by, z - bz]
-                            if t == 0:
-                                continue
-                            v = (fl(vs, x), fl(vs, y), fl(vs, z))
-                            for b in range(bstart[t], bstart[t + 1]):
-                                bb = box_corners(bboxes, b)
-                                best = narrow(p, r, h, v, bb, x, y, z, t, b, vs, best, mode)
-                            if mode == ENTERS and best[1] != 0:
-                                return best
+                best = scan_chunk(p, r, h, world, ci, bx, by, bz, max(i0, bx), min(i1, bx + S - 1),
+                                  max(j0, by), min(j1, by + S - 1), max(k0, bz), min(k1, bz + S - 1), best, mode)
+                if mode == ENTERS and best[1] != 0:
+                    return best
     return best

@@ -67,8 +67,9 @@ class RowResults:
         voxel: int64 (M, P, 3) hit voxel; block: int32 (M, P) hit block type, -1 if clear.
         candidates: int32 (M, P) solid boxes the narrow phase tested per pass. This depends on the
             broad phase (``solve_rows(broad=...)``): the swept-box scan tests every box in the
-            swept bounding box, the walk of long motions only boxes it could not rule out first;
-            every other field is identical for all broad phases.
+            swept bounding box, the walk of long motions only boxes it could not rule out first
+            (a subset; it depends on the geometry and the world's extent, not on chunk order or
+            size); every other field is identical for all broad phases.
         points: float (M, P+1, 3) centre at the start of each pass, then the end (the slide path;
             entries after the last pass run repeat the end).
         flags: int32 (M,) bit k set when divergence kind k applies (see check.KINDS).

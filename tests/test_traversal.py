@@ -137,3 +137,24 @@ def test_zero_length_axes_and_empty_world():
     m = np.array([[50.0, 0.0, 0.0], [0.0, 0.0, 0.0]])
     res = _assert_same(world, s, m, s + m, np.full((2, 3), 0.4), "float64")
     assert res.ref_end.tolist() == [[51.0, 1.0, 1.0], [1.0, 1.0, 1.0]]
+
+
+@pytest.mark.parametrize("broad", ["walk", "auto"])
+def test_boxes_tested_do_not_depend_on_chunk_size(broad):
+    # The walk splits regions on absolute power-of-two voxel boundaries, never on chunk borders, so
+    # for the same world extent even the diagnostic count of boxes tested depends on the geometry
+    # alone. (The walk starts from the swept box clamped to the world's chunks, so the extent must
+    # match: solid corners make every chunk size cover [0, 32) x [0, 16) x [0, 32).)
+    rng = np.random.default_rng(3)
+    g = np.where(rng.random((32, 16, 32)) < 0.08, rng.integers(1, len(SHAPES), (32, 16, 32)), 0).astype(np.uint16)
+    g[0, 0, 0] = g[-1, -1, -1] = 1
+    n = 200
+    s = rng.uniform([0, 0, 0], [32, 16, 32], (n, 3))
+    m = rng.normal(size=(n, 3)) * rng.choice([1.0, 8.0, 30.0], (n, 1))
+    h = rng.uniform(0.1, 0.8, (n, 3))
+    worlds = [_world(g, (0, 0, 0), S, 1.0, SHAPES) for S in (4, 8, 16)]
+    assert len({(tuple(w.lo), tuple(w.hi)) for w in worlds}) == 1
+    got = [solve_rows(w, s, m, s + m, h, SolverSettings(), broad=broad) for w in worlds]
+    for other in got[1:]:
+        for name in COMPARED + ("candidates",):
+            assert np.array_equal(getattr(got[0], name), getattr(other, name), equal_nan=True), name
