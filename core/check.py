@@ -111,6 +111,7 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
     prev_end = np.zeros((N, 3))  # float64 recorded end of the frame before the block
     prev_active = np.zeros(N, bool)
     has_prev = False
+    buf = _Buffers(dt, settings.passes, keep_rows=on_block is None)
     for blk in trace.iter_frames(rows_per_block, prefetch=True):
         if should_stop is not None and should_stop():
             report.cancelled = True
@@ -125,12 +126,11 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
             if not len(fr):
                 continue
             M = len(fr)
-            start, motion, end = np.empty((M, 3), dt), np.empty((M, 3), dt), np.empty((M, 3), dt)
-            gap, disc = np.empty(M), np.empty(M, bool)
+            start, motion, end, gap, disc = buf.rows_in(M)
             nb_block.gather_rows(blk.start, blk.motion, blk.end, blk.active, prev_end, prev_active, has_prev,
                                  fr, col, tol, start, motion, end, gap, disc)
             half = blk.half[0][col] if blk.half.strides[0] == 0 else blk.half[fr, col]
-            rows = solve_rows(world, start, motion, end, half, settings)
+            rows = solve_rows(world, start, motion, end, half, settings, out=buf.rows_out(M))
             rows.flags |= disc.astype(np.int32) << DISCONTINUITY_BIT
             rows.error[disc, DISCONTINUITY_BIT] = gap[disc]
             report.entity_frames += M
@@ -144,6 +144,32 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
         if progress is not None:
             progress(blk.f1, trace.frame_count)
     return report
+
+
+class _Buffers:
+    """Row arrays reused from segment to segment (fresh memory per block costs page faults, about
+    a fifth of a big check). Results are reused only when no listener may keep them."""
+
+    def __init__(self, dtype, passes: int, keep_rows: bool):
+        self.dtype, self.passes, self.keep_rows = dtype, passes, keep_rows
+        self.cap = 0
+
+    def _grow(self, m: int):
+        if m > self.cap:
+            self.cap = m
+            dt = self.dtype
+            self.inputs = (np.empty((m, 3), dt), np.empty((m, 3), dt), np.empty((m, 3), dt), np.empty(m),
+                           np.empty(m, bool))
+            self.rows = RowResults.alloc(m, self.passes, dt) if self.keep_rows else None
+
+    def rows_in(self, m: int):
+        """start, motion, recorded end float (m, 3); gap float64 (m,); disc bool (m,)."""
+        self._grow(m)
+        return tuple(a[:m] for a in self.inputs)
+
+    def rows_out(self, m: int):
+        self._grow(m)
+        return self.rows
 
 
 def _count(report: TraceReport, flags: np.ndarray):

@@ -21,7 +21,7 @@ INVALID, START_OVERLAP, PENETRATION, TUNNELING, SNAG, MISMATCH, DISCONTINUITY = 
 ROWS_PER_TASK = 256
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)  # called once per pass or row: not worth inlining (compile time)
 def row_valid(s, m, e, h):
     for a in range(3):
         if not (np.isfinite(s[a]) and np.isfinite(m[a]) and np.isfinite(e[a]) and np.isfinite(h[a])):
@@ -35,6 +35,19 @@ def row_valid(s, m, e, h):
 def row3(a, i):
     """Row ``i`` of an (M, 3) array as a 3-tuple (no array view)."""
     return a[i, 0], a[i, 1], a[i, 2]
+
+
+@njit(cache=True, inline="always")
+def clear_passes(i, k0, t_out, n_out, v_out, type_out, cand_out, vs):
+    """Passes ``k0`` and later of row ``i`` did not run: clear (t 1, no normal, voxel 0, type -1).
+    Every output slot is written by the kernel, so callers may hand in uninitialised arrays."""
+    for k in range(k0, t_out.shape[1]):
+        t_out[i, k] = fl(vs, 1)
+        type_out[i, k] = -1
+        cand_out[i, k] = 0
+        for a in range(3):
+            n_out[i, k, a] = 0
+            v_out[i, k, a] = 0
 
 
 @njit(cache=True, inline="always")
@@ -57,9 +70,11 @@ def check_row(i, start, motion, rec_end, half, world, skin, passes, tol, broad, 
             ref_end[i, a] = fl(vs, np.nan)
             for k in range(pts.shape[1]):
                 pts[i, k, a] = fl(vs, np.nan)
+        clear_passes(i, 0, t_out, n_out, v_out, type_out, cand_out, vs)
         return
     run, hit = solve_row(s, m, h, world, skin, passes, broad, stack, i, ref_end, t_out, n_out, v_out,
                          type_out, cand_out, pts)
+    clear_passes(i, run, t_out, n_out, v_out, type_out, cand_out, vs)
     npass[i] = run
     f = 0
     d0 = overlap_depth(s, h, world)
@@ -122,7 +137,7 @@ def check_rows(start, motion, rec_end, half, world, skin, passes, tol, broad,
     Args:
         start, motion, rec_end, half: float (M, 3) world units, all of the world's float type.
         skin, tol: float world units; passes: int; broad: nb_solve.SCAN, WALK or AUTO.
-    Outputs (preallocated, written per row):
+    Outputs (preallocated, every slot written; may be uninitialised):
         ref_end float (M, 3); npass int8 (M,) passes run; state int8 (M,) CLEAR/HIT/STARTED_INSIDE;
         t_out float (M, P); n_out int8 (M, P, 3); v_out int64 (M, P, 3); type_out int32 (M, P);
         cand_out int32 (M, P) boxes the narrow phase tested; pts float (M, P+1, 3) slide path

@@ -35,7 +35,7 @@ def search(p, r, h, world, broad, mode, stack):
     return walk_cells(p, r, h, world, i0, i1, j0, j1, k0, k1, best, mode, stack)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)  # called once per pass or row: not worth inlining (compile time)
 def slide_axis(pa, ra, tmin, rest, skin, blocked):
     """One axis of the move to the contact: (new centre, remaining motion, hit normal component)."""
     q = pa + ra * tmin

@@ -95,7 +95,7 @@ def inside_axis(p, r, h, v, bb, vs):
     return 0
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)  # called once per pass or row: not worth inlining (compile time)
 def start_best(vs):
     """The search state before any box is tested."""
     zero = np.int64(0)
@@ -112,7 +112,7 @@ def pack_entry(eax):
     return np.int64(8) << eax
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)  # called once per pass or row: not worth inlining (compile time)
 def blocked_axes(packed):
     """Axes a pass blocks, from the OR of ``pack_entry`` over every box tied at the minimum time.
 

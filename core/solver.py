@@ -2,7 +2,7 @@
 from __future__ import annotations
 
 import weakref
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, fields
 
 import numpy as np
 
@@ -89,6 +89,18 @@ class RowResults:
     error: np.ndarray
 
     @classmethod
+    def alloc(cls, m: int, passes: int, dtype) -> "RowResults":
+        """Uninitialised arrays for ``m`` rows (the kernels write every slot)."""
+        return cls(np.empty((m, 3), dtype), np.empty(m, np.int8), np.empty(m, np.int8), np.empty((m, passes), dtype),
+                   np.empty((m, passes, 3), np.int8), np.empty((m, passes, 3), np.int64),
+                   np.empty((m, passes), np.int32), np.empty((m, passes), np.int32),
+                   np.empty((m, passes + 1, 3), dtype), np.empty(m, np.int32), np.empty((m, 7), dtype))
+
+    def head(self, m: int) -> "RowResults":
+        """Views of the first ``m`` rows."""
+        return RowResults(*(getattr(self, f.name)[:m] for f in fields(self)))
+
+    @classmethod
     def empty(cls, m: int, passes: int, dtype) -> "RowResults":
         return cls(np.zeros((m, 3), dtype), np.zeros(m, np.int8), np.zeros(m, np.int8),
                    np.ones((m, passes), dtype), np.zeros((m, passes, 3), np.int8),
@@ -130,7 +142,7 @@ def kernel_world(world: VoxelWorld, dtype) -> tuple:
 
 
 def solve_rows(world: VoxelWorld, start, motion, recorded_end, half, settings: SolverSettings,
-               broad: str = "auto") -> RowResults:
+               broad: str = "auto", out: RowResults | None = None) -> RowResults:
     """Re-solve and classify M entity-frames against the world as it stands now.
 
     Args:
@@ -139,11 +151,19 @@ def solve_rows(world: VoxelWorld, start, motion, recorded_end, half, settings: S
             reference is wanted.
         broad: "auto" (default: scan short motions' swept boxes, walk long ones), "scan" (always
             the whole swept bounding box) or "walk" (always the walk); see ``BROAD_PHASES``.
+        out: results of at least M rows, of this precision and pass count, to write into (a
+            streaming check reuses one across blocks); the first M rows are returned.
     """
     dt = settings.dtype
     ft = dt.type
     s, m, e, h = (_rows(a, dt) for a in (start, motion, recorded_end, half))
-    out = RowResults.empty(len(s), settings.passes, dt)
+    if out is None:
+        out = RowResults.alloc(len(s), settings.passes, dt)
+    elif out.toi.dtype != dt or out.toi.shape[1] != settings.passes or len(out.toi) < len(s):
+        raise ValueError(f"out holds {len(out.toi)} rows of {out.toi.shape[1]} {out.toi.dtype} passes; "
+                         f"{len(s)} rows of {settings.passes} {dt} passes needed")
+    else:
+        out = out.head(len(s))
     if not len(s):
         return out
     vs = world.voxel_size

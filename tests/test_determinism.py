@@ -155,3 +155,36 @@ def test_chunk_order_and_block_size_do_not_matter(base, tmp_path):
     c_json, c_rows = _run(path, rows_per_block=333)  # many blocks, edits landing inside blocks
     assert a_json == b_json == c_json
     assert _digest(a_rows) == _digest(b_rows) == _digest(c_rows)
+
+
+def test_each_entity_frame_is_solved_once_and_edits_applied_forward(base, monkeypatch):
+    # No repeated work: the classification reuses the reference solve (one solve per active
+    # entity-frame, no second pass over divergent rows), the world is built once per check and
+    # edits are applied as the stream moves forward, never by restarting from the recorded chunks.
+    import resweep.core.check as check_mod
+    from resweep.core.world import VoxelWorld
+
+    kw, path = base
+    solved, frames, built = [], [], []
+    real_solve, real_advance, real_init = check_mod.solve_rows, VoxelWorld.advance_to, VoxelWorld.__init__
+
+    def counting_solve(world, start, *a, **k):
+        solved.append(len(start))
+        return real_solve(world, start, *a, **k)
+
+    def recording_advance(self, frame):
+        frames.append(frame)
+        return real_advance(self, frame)
+
+    def counting_init(self, *a, **k):
+        built.append(1)
+        real_init(self, *a, **k)
+
+    monkeypatch.setattr(check_mod, "solve_rows", counting_solve)
+    monkeypatch.setattr(VoxelWorld, "advance_to", recording_advance)
+    monkeypatch.setattr(VoxelWorld, "__init__", counting_init)
+    with open_trace(path) as tr:
+        report = check_trace(tr, SolverSettings(), rows_per_block=500)
+    assert sum(solved) == report.entity_frames == int(kw["active"].sum())
+    assert len(built) == 1
+    assert frames == sorted(frames) and len(frames) >= len(np.unique(kw["edits"][:, 0]))
