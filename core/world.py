@@ -77,7 +77,7 @@ class VoxelWorld:
         self._pristine = blocks
         self.blocks = blocks.copy()
         self.keys, self.slot = build_hash(origin // S)
-        self._edit_chunk, self._edit_local, self._edit_pos = self._locate_edits()
+        self._edit_chunk, self._edit_local = self._locate_edits()
         self._applied = 0  # edits[:_applied] are in self.blocks
         self.frame = -(2**62)
         if len(origin):
@@ -93,10 +93,10 @@ class VoxelWorld:
     def _locate_edits(self):
         S = self.chunk_size
         if not len(self.edits):
-            return np.zeros(0, np.int64), np.zeros((0, 3), np.int64), np.zeros(0, np.int64)
+            return np.zeros(0, np.int64), np.zeros((0, 3), np.int64)
         coords = self.edits[:, 1:4]
         cidx = np.array([self.chunk_index(*(c // S)) for c in coords], dtype=np.int64)
-        return cidx, coords - (coords // S) * S, np.arange(len(coords))
+        return cidx, coords - (coords // S) * S
 
     def chunk_index(self, cx: int, cy: int, cz: int) -> int:
         """Index of the chunk at chunk coordinate (cx, cy, cz), or -1."""
@@ -146,14 +146,6 @@ class VoxelWorld:
         if changed:
             self.version += 1
         return changed
-
-    def kernel_args(self, dtype) -> tuple:
-        """The world as a tuple for the numba kernels, floats in ``dtype`` (float32 or float64)."""
-        ft = np.dtype(dtype).type
-        return (self.keys, self.slot, self.blocks, np.int64(self.chunk_size),
-                self.lo.astype(np.int64), self.hi.astype(np.int64),
-                self.shapes.box_start.astype(np.int64), self.shapes.boxes.astype(dtype),
-                np.int64(self.shapes.reach), ft(self.voxel_size))
 
 
 def chunks_from_dense(grid: np.ndarray, origin=(0, 0, 0), chunk_size: int = 16):
