@@ -1,0 +1,1 @@
+"""resweep.app: the command line, pictures without Qt, and the desktop viewer."""

@@ -19,7 +19,7 @@ import numpy as np
 from _bench import Row, common_args, median_call, print_table, rate, yardstick_trace
 
 from resweep.core import SolverSettings, open_trace, solve_rows
-from resweep.core.solver import warm_up
+from resweep.core.check.rows import warm_up
 
 
 def dense_grid(world):

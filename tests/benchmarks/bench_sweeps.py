@@ -18,7 +18,7 @@ import numpy as np
 from _bench import Row, common_args, median_call, print_table
 
 from resweep.core import SolverSettings, VoxelWorld, chunks_from_dense, solve_rows, unit_cube_shapes
-from resweep.core.solver import warm_up
+from resweep.core.check.rows import warm_up
 
 LENGTHS = (4, 16, 64)
 FIELDS = ("ref_end", "npass", "state", "toi", "normal", "voxel", "block", "points", "flags", "error")

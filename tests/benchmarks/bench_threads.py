@@ -22,8 +22,10 @@ import numpy as np
 
 from _bench import Row, common_args, print_table, rate, yardstick_trace
 
-from resweep.core import SolverSettings, check_trace, nb_check, open_trace
-from resweep.core.solver import RowResults, kernel_world, warm_up
+from resweep.core import SolverSettings, check_trace, open_trace
+from resweep.core.check import nb_rows as nb_check
+from resweep.core.check.rows import RowResults, warm_up
+from resweep.core.world.kernel import kernel_world
 
 FIELDS = ("ref_end", "npass", "state", "toi", "normal", "voxel", "block", "candidates", "points", "flags", "error")
 

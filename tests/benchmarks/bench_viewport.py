@@ -26,8 +26,8 @@ if sys.platform.startswith("linux") and not os.environ.get("DISPLAY"):
 import numpy as np  # noqa: E402
 import pyvista as pv  # noqa: E402
 
-from resweep.app.session import TraceSession  # noqa: E402
-from resweep.app.viewport import Viewport, ViewOptions  # noqa: E402
+from resweep.core.analysis.frames import TraceSession  # noqa: E402
+from resweep.app.scene.viewport import Viewport, ViewOptions  # noqa: E402
 
 QUARRY = Path(__file__).resolve().parents[2] / "sample_traces" / "quarry.h5"
 CLIMBER = 2  # walks 200+ frames across floor, stairs and the plank wall's chunk

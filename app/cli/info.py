@@ -1,0 +1,40 @@
+"""``resweep info``: what a trace holds and what is wrong with it."""
+from __future__ import annotations
+
+import sys
+
+from resweep.core.analysis.describe import describe
+from resweep.core.format.reader import open_trace
+
+from resweep.app.cli.exits import EXIT_OK, EXIT_USAGE
+from resweep.app.cli.output import emit_json
+
+
+def run(args) -> int:
+    with open_trace(args.trace) as trace:
+        info = describe(trace)
+    if args.json:
+        if not emit_json(info, args.json, "info"):
+            return EXIT_USAGE
+        return EXIT_OK
+    w = sys.stdout.write
+    w(f"{info['path']}: resweep trace v{info['version']}" + (f" - {info['title']}" if info["title"] else "") + "\n")
+    if info["producer"]:
+        w(f"  producer      {info['producer']}\n")
+    span = info["time_span"]
+    w(f"  frames        {info['frames']}" + (f"  ({span[0]:.3f} s .. {span[1]:.3f} s)" if span else "") + "\n")
+    w(f"  entities      {info['entities']}  ids {info['entity_ids'][:10]}{' ...' if info['entities'] > 10 else ''}\n")
+    w(f"  frame dtype   {info['frame_dtype']}   voxel size {info['voxel_size']:g}   up axis {info['up_axis']}\n")
+    wb = info["world_bounds"]
+    w(f"  world         {info['chunks']} chunks of {info['chunk_size']}^3"
+      + (f", voxels {wb[0]} .. {wb[1]}" if wb else ", empty") + f", {info['edits']} edits\n")
+    w("  block types   " + ", ".join(f"{t['type']} {t['name']} ({t['voxels']} voxels)"
+                                     for t in info["block_types"] if t["voxels"] or t["type"] < 8) + "\n")
+    w(f"  active rows   {info['active_entity_frames']}, invalid {info['invalid_entity_frames']}\n")
+    if info["problems"]:
+        w("  problems:\n")
+        for p in info["problems"]:
+            w(f"    - {p}\n")
+    else:
+        w("  problems      none\n")
+    return EXIT_OK

@@ -1,0 +1,498 @@
+"""The 3-D view of one entity-frame on any pyvista Plotter (Qt widget or off screen).
+
+Every actor is made once, when the Viewport is; :meth:`Viewport.show` only copies fresh numpy
+geometry into the existing datasets and toggles visibility, so stepping frames never clears
+the plotter. Voxel faces are meshed per chunk and cached (:mod:`.voxel_mesh`); the cut-away
+around the focused entity is a cell mask over the cached faces, redone only when the focus or
+camera moves enough to matter.
+"""
+from __future__ import annotations
+
+import hashlib
+from collections import OrderedDict
+from dataclasses import dataclass
+
+import numpy as np
+import pyvista as pv
+from vtkmodules.vtkRenderingCore import vtkRenderer
+
+from resweep.app.scene import style as S
+from resweep.app.scene.voxel_mesh import (Faces, ShapeTables, blocks_sight, box_quads, chunk_faces, concat, contact_quads,
+                         empty_faces, padded_types, select, shape_tables, swept_quads, to_polydata)
+
+PRESETS = ("follow", "motion", "top", "side")
+_ROLES = ("start", "recorded", "reference", "swept", "hit", "normal", "slide", "trail", "gap", "others")
+_STYLE = {"start": S.START, "recorded": S.RECORDED, "reference": S.REFERENCE, "swept": S.SWEPT,
+          "hit": S.HIT_FACE, "normal": S.NORMAL, "slide": S.SLIDE, "trail": S.TRAIL, "gap": S.GAP,
+          "others": S.OTHERS}
+_VIEW_ANGLE = 30.0  # degrees, the pyvista default
+CHUNK_VARIANTS = 256  # chunk meshes kept, current and earlier contents (a few MB for 16^3 chunks)
+
+
+@dataclass
+class ViewOptions:
+    """What :meth:`Viewport.show` draws.
+
+    Attributes:
+        cutaway_radius: voxels around the focused entity whose faces are drawn.
+        show_others, show_swept, show_trail: draw other entities, swept volumes, the trail.
+        trail_frames: frames of recorded start centres in the trail.
+    """
+
+    cutaway_radius: float = 8.0
+    show_others: bool = True
+    show_swept: bool = True
+    show_trail: bool = True
+    trail_frames: int = 30
+
+
+def _box_lo_hi(centre, half):
+    c, h = np.asarray(centre, np.float64), np.asarray(half, np.float64)
+    return c - h, c + h
+
+
+def _finite(v) -> bool:
+    return bool(np.isfinite(np.asarray(v, np.float64)).all())
+
+
+class Viewport:
+    """Draws :class:`FrameState` s of a session into ``plotter``.
+
+    Attributes:
+        plotter: the pyvista Plotter.
+        legend: list of (label, rgb 0..255) of the styles drawn by the last :meth:`show`.
+        block_legend: list of (block name, rgb) of the block types in the cut-away.
+    """
+
+    def __init__(self, plotter):
+        self.plotter = plotter
+        self.session = None
+        self.legend: list[tuple[str, tuple]] = []
+        self.block_legend: list[tuple[str, tuple]] = []
+        self._meshes: dict[str, pv.PolyData] = {}
+        self._actors = {}
+        self._preset = "follow"
+        self._camera_ready = False
+        self._focus = None          # float (3,) world point the camera tracks
+        self._interest = None       # (lo, hi) bounds of the focused entity's geometry
+        self._state = None
+        self._col = 0
+        self._options = ViewOptions()
+        self._tables: ShapeTables | None = None
+        self._rgb = None
+        self._chunks: dict[int, tuple] = {}   # chunk -> (world version seen, padded types, Faces, build id)
+        self._builds = 0
+        self._variants: OrderedDict[tuple, tuple] = OrderedDict()  # (chunk, content digest) -> (Faces, build id)
+        self._merged_key = None
+        self._merged = empty_faces()
+        self._cut_key = None
+        self._tracked = None
+        self._topo: dict[str, tuple] = {}
+        self._quad_cells: dict[int, np.ndarray] = {}
+        self.chunk_builds = 0        # chunk meshes built so far (tests and benchmarks read it)
+        top, bottom = S.BACKGROUND[1], S.BACKGROUND[0]
+        plotter.set_background([c / 255 for c in bottom], top=[c / 255 for c in top])
+        self._add_actors()
+        # Cameras also move by mouse (Qt) or by callers: recheck the cut-away as each render starts
+        # (a few comparisons unless the camera moved by a tenth of its distance).
+        plotter.renderer.AddObserver("StartEvent", lambda *_: self._refresh_cutaway())
+
+    # -- actors ----------------------------------------------------------------------------------
+    def _add_actors(self):
+        p = self.plotter
+        vox = to_polydata(_one_face())
+        self._meshes["voxels"] = vox
+        self._actors["voxels"] = p.add_mesh(vox, scalars="rgb", rgb=True, lighting=False, show_edges=True,
+                                            edge_color=(0.22, 0.22, 0.24), line_width=0.5,
+                                            preference="cell", show_scalar_bar=False, reset_camera=False)
+        for role in _ROLES:
+            st = _STYLE[role]
+            if st.representation == "lines":
+                mesh = pv.PolyData(np.zeros((2, 3)), lines=[2, 0, 1])
+            else:
+                mesh = pv.PolyData.from_regular_faces(box_quads(np.zeros(3), np.ones(3)).reshape(-1, 3),
+                                                      np.arange(24).reshape(6, 4))
+            self._meshes[role] = mesh
+            kw = dict(color=st.color, opacity=st.opacity, lighting=st.lit, reset_camera=False,
+                      show_scalar_bar=False)
+            if st.representation == "wireframe":
+                kw.update(style="wireframe", line_width=st.line_width)
+            elif st.representation == "lines":
+                kw.update(line_width=st.line_width, point_size=st.line_width * 2.5, render_points_as_spheres=True)
+            elif role == "others":
+                kw.update(show_edges=True, edge_color=(0.45, 0.45, 0.5))
+            self._actors[role] = p.add_mesh(mesh, **kw)
+            self._actors[role].SetVisibility(False)
+        # The reference box goes in a layer drawn over the scene: it sits inside the last swept
+        # hull and against hit faces, and translucent surfaces must not tint or hide it.
+        self._overlay = vtkRenderer()
+        self._overlay.SetLayer(1)
+        self._overlay.InteractiveOff()
+        self._overlay.SetActiveCamera(p.renderer.GetActiveCamera())
+        self._overlay.SetViewport(p.renderer.GetViewport())
+        rw = p.render_window
+        rw.SetNumberOfLayers(max(2, rw.GetNumberOfLayers()))
+        rw.AddRenderer(self._overlay)
+        vtkRenderer.RemoveActor(p.renderer, self._actors["reference"])
+        self._overlay.AddActor(self._actors["reference"])
+        self._actors["voxels"].SetVisibility(False)
+
+    def _put(self, role: str, mesh) -> bool:
+        """Copy ``mesh`` into the role's existing dataset (or hide the role when None/empty)."""
+        actor = self._actors[role]
+        if mesh is None or mesh.n_points == 0:
+            actor.SetVisibility(False)
+            return False
+        self._meshes[role].copy_from(mesh)
+        actor.SetVisibility(True)
+        return True
+
+    def _set(self, role: str, points, cells=None, lines: bool = False) -> bool:
+        """Write float (m, 3) ``points`` into the role's dataset: in place when the topology
+        (int (n, 4) quads, or one poly line through all points) is the one already there, else
+        replace points and cells. None or no points hides the role."""
+        actor = self._actors[role]
+        if points is None or not len(points):
+            actor.SetVisibility(False)
+            return False
+        mesh = self._meshes[role]
+        pts = np.asarray(points, np.float64)
+        topo = (len(pts), lines, None if cells is None else cells.tobytes())
+        if self._topo.get(role) == topo:
+            mesh.points[:] = pts
+            mesh.GetPoints().Modified()
+        else:
+            mesh.points = pts
+            if lines:
+                k = len(pts)
+                mesh.lines = np.concatenate([[k], np.arange(k)])
+                mesh.verts = np.column_stack([np.ones(k, np.int64), np.arange(k)]).ravel()
+            else:
+                mesh.regular_faces = cells
+            self._topo[role] = topo
+        actor.SetVisibility(True)
+        return True
+
+    def _set_quads(self, role: str, quads) -> bool:
+        if quads is None or not len(quads):
+            return self._set(role, None)
+        n = len(quads)
+        cells = self._quad_cells.get(n)
+        if cells is None:
+            cells = self._quad_cells.setdefault(n, np.arange(4 * n).reshape(n, 4))
+        return self._set(role, np.asarray(quads).reshape(-1, 3), cells)
+
+    # -- session ---------------------------------------------------------------------------------
+    def set_session(self, session) -> None:
+        """Use ``session``'s world; chunk meshes are built on first need and cached."""
+        self.session = session
+        tr = session.trace
+        self._tables = shape_tables(session.world.shapes)
+        used = int(session.world.blocks.max()) if session.world.blocks.size else 0
+        if len(session.world.edits):
+            used = max(used, int(session.world.edits[:, 4].max()))
+        self._rgb = S.block_rgb(session.world.shapes.names, used + 1)
+        self._chunks.clear()
+        self._variants.clear()
+        self._merged_key = self._cut_key = None
+        self._camera_ready = False
+        self._up = "xyz".index(tr.up_axis)
+        labels = {a: (a + " up" if a == tr.up_axis else a) for a in "xyz"}
+        cx, cy, cz = ([c / 255 for c in rgb] for rgb in S.AXIS_RGB)
+        self.plotter.add_axes(xlabel=labels["x"], ylabel=labels["y"], zlabel=labels["z"], color="black",
+                              line_width=2, x_color=cx, y_color=cy, z_color=cz)  # replaces the old marker
+        self.plotter.camera.up = tuple(np.eye(3)[self._up])
+
+    # -- voxels ----------------------------------------------------------------------------------
+    def _chunk(self, c: int):
+        """(world version seen, padded types, Faces, build id) of chunk ``c``, re-meshed only when
+        its blocks or its neighbours' border layers changed; meshes of earlier contents are kept
+        a while, so scrubbing back and forth over an edit does not re-mesh."""
+        world = self.session.world
+        entry = self._chunks.get(c)
+        if entry is not None and entry[0] == world.version:
+            return entry
+        types = padded_types(world, c)
+        if entry is not None and np.array_equal(entry[1], types):
+            entry = (world.version, entry[1], entry[2], entry[3])
+        else:
+            key = (c, hashlib.blake2b(types.tobytes(), digest_size=16).digest())
+            hit = self._variants.get(key)
+            if hit is None:
+                faces = chunk_faces(types, world.chunk_origin[c], self._tables, self._rgb, world.voxel_size,
+                                    self._up)
+                self._builds += 1
+                self.chunk_builds += 1
+                hit = self._variants[key] = (faces, self._builds)
+                while len(self._variants) > CHUNK_VARIANTS:
+                    self._variants.popitem(last=False)
+            else:
+                self._variants.move_to_end(key)
+            entry = (world.version, types, hit[0], hit[1])
+        self._chunks[c] = entry
+        return entry
+
+    def _near_chunks(self, centre, radius: float) -> np.ndarray:
+        w = self.session.world
+        vs = w.voxel_size
+        lo = w.chunk_origin * vs
+        hi = (w.chunk_origin + w.chunk_size) * vs
+        nearest = np.clip(centre, lo, hi)
+        return np.flatnonzero(((nearest - centre) ** 2).sum(axis=1) <= (radius + vs) ** 2)
+
+    def _update_voxels(self, focus, radius_vox: float, targets):
+        """Cut-away: faces of voxels within ``radius_vox`` voxels of ``focus``, minus the voxels
+        that block the line of sight from the camera to any of ``targets`` (float (k, 3), e.g. the
+        corners of the focused boxes), so walls and floors never hide them."""
+        w = self.session.world
+        vs = w.voxel_size
+        radius = radius_vox * vs
+        near = self._near_chunks(focus, radius)
+        entries = [self._chunk(int(c)) for c in near]
+        key = tuple(e[3] for e in entries)
+        if key != self._merged_key:
+            self._merged = concat([e[2] for e in entries])
+            self._merged_key = key
+            self._cut_key = None
+        cam = np.asarray(self.plotter.camera.position, np.float64)
+        # Redo the mask only when the focus moved by a voxel or the camera by a tenth of its
+        # distance: finer moves change which voxels block the sight by at most a sliver.
+        dist = max(np.linalg.norm(cam - focus), vs)
+        cut = (key, radius, np.round(focus / vs), cam, dist, len(targets))
+        old = self._cut_key
+        if (old is not None and old[:2] == cut[:2] and (np.abs(old[2] - cut[2]) <= 1).all()
+                and np.linalg.norm(old[3] - cam) < 0.1 * old[4] and old[5] == cut[5]):
+            return
+        self._cut_key = cut
+        f = self._merged
+        centre = f.centre.astype(np.float64)
+        keep = ((centre - focus) ** 2).sum(axis=1) <= radius ** 2
+        if len(targets):
+            cells, inv = np.unique(centre[keep], axis=0, return_inverse=True)
+            blocked = blocks_sight(cells, 0.5 * vs - 0.02 * vs, cam, np.asarray(targets, np.float64))
+            idx = np.flatnonzero(keep)
+            keep[idx[blocked[inv.ravel()]]] = False
+        shown = select(f, keep)
+        self._put("voxels", to_polydata(shown) if len(shown) else None)
+        types = np.unique(shown.block)
+        self.block_legend = [(w.shapes.name(int(t)), tuple(int(v) for v in self._rgb[t]))
+                             for t in types if t < len(self._rgb)]
+
+    # -- frame -----------------------------------------------------------------------------------
+    def show(self, state, focus_col: int, options: ViewOptions = ViewOptions()) -> None:
+        """Draw column ``focus_col`` of ``state``; updates the existing actors in place."""
+        if self.session is None:
+            raise RuntimeError("Viewport.show needs set_session first")
+        world = self.session.world
+        if world.frame != state.frame:
+            world.advance_to(state.frame)  # someone asked the session for another frame meanwhile
+        self._state, self._col, self._options = state, int(focus_col), options
+        col = self._col
+        rows = state.rows
+        drawn = set()
+        start, rec, ref, half = state.start[col], state.recorded_end[col], rows.ref_end[col], state.half[col]
+        active = bool(state.active[col]) and _finite(start) and _finite(half)
+
+        def box(role, centre):
+            if active and _finite(centre):
+                lo, hi = _box_lo_hi(centre, half)
+                if self._set_quads(role, box_quads(lo, hi)):
+                    drawn.add(role)
+                    return lo, hi
+            self._set(role, None)
+            return None
+
+        bounds = [b for b in (box("start", start), box("reference", ref)) if b is not None]
+        rec_box = box("recorded", rec)
+        self._draw_passes(state, col, active, options, drawn, bounds)
+        self._draw_lines(state, col, active, options, drawn)
+        self._draw_others(state, col, options, drawn)
+        vs = world.voxel_size
+        if active:
+            self._focus = np.asarray(start, np.float64)
+            if rec_box is not None and np.linalg.norm(np.asarray(rec) - start) <= options.cutaway_radius * vs:
+                bounds.append(rec_box)
+            lo = np.min([b[0] for b in bounds], axis=0)
+            hi = np.max([b[1] for b in bounds], axis=0)
+            self._interest = (lo, hi)
+        elif self._focus is None:  # nothing to follow yet: look where the entity is nearest in time
+            near = self.session.nearest_position(state.frame, col)
+            self._focus = near if near is not None else self._world_centre()
+            self._interest = (self._focus - 2 * vs, self._focus + 2 * vs)
+        if not self._camera_ready:
+            self.set_camera(self._preset)
+        else:
+            self._track()
+            self._refresh_cutaway()
+        self.legend = [(_STYLE[r].label, _STYLE[r].rgb) for r in _ROLES if r in drawn]
+
+    def _world_centre(self):
+        w = self.session.world
+        return (w.lo + w.hi) / 2.0 * w.voxel_size
+
+    def _refresh_cutaway(self):
+        state, col = self._state, self._col
+        if state is None or self._focus is None:
+            return
+        targets = []
+        if state.active[col] and _finite(state.half[col]):
+            half = state.half[col] * 0.95  # corners pulled in so touching faces do not count
+            corners = np.array([[i, j, k] for i in (-1, 1) for j in (-1, 1) for k in (-1, 1)], np.float64)
+            for c in (state.start[col], state.rows.ref_end[col]):
+                if _finite(c):
+                    targets.append(c + corners * half)
+                    targets.append(np.asarray(c, np.float64)[None])
+        targets = np.concatenate(targets) if targets else np.zeros((0, 3))
+        self._update_voxels(self._focus, self._options.cutaway_radius, targets)
+
+    def _draw_passes(self, state, col, active, options, drawn, bounds):
+        rows = state.rows
+        half = state.half[col]
+        n = int(rows.npass[col]) if active else 0
+        pts = rows.points[col]
+        swept, hits, arrows = [], [], []
+        vs = self.session.world.voxel_size
+        skin = self.session.settings.skin * vs
+        shapes = self.session.world.shapes
+        for k in range(n):
+            a, b = pts[k], pts[k + 1]
+            if not (_finite(a) and _finite(b)):
+                continue
+            lo, hi = _box_lo_hi(a, half)
+            if options.show_swept and np.any(a != b):
+                q = swept_quads(lo, hi, b - a)
+                swept.append(q)
+                bounds.append((q.reshape(-1, 3).min(axis=0), q.reshape(-1, 3).max(axis=0)))
+            t = int(rows.block[col, k])
+            if t >= 0:
+                boxes = shapes.boxes_of(t) if t < shapes.count else np.array([[0, 0, 0, 1, 1, 1.0]])
+                f, arr = contact_quads(rows.voxel[col, k], rows.normal[col, k], boxes, b, half, skin, vs)
+                hits.append(f)
+                arrows.append(arr)
+        for role, parts in (("swept", swept), ("hit", hits), ("normal", arrows)):
+            if self._set_quads(role, np.concatenate(parts) if parts else None):
+                drawn.add(role)
+        path = pts[: n + 1] if n else np.zeros((0, 3))
+        path = path[np.isfinite(path).all(axis=1)] if len(path) else path
+        if self._set("slide", path if len(path) >= 2 else None, lines=True):
+            drawn.add("slide")
+
+    def _draw_lines(self, state, col, active, options, drawn):
+        start, rec, ref = state.start[col], state.recorded_end[col], state.rows.ref_end[col]
+        tol = self.session.settings.tolerance * self.session.world.voxel_size
+        if active and _finite(rec) and _finite(ref) and np.linalg.norm(rec - ref) > tol:
+            self._set("gap", np.stack([ref, rec]), lines=True)
+            drawn.add("gap")
+        else:
+            self._set("gap", None)
+        trail = np.zeros((0, 3))
+        if options.show_trail and active:
+            trail = self.session.trail(state.frame, col, options.trail_frames)
+            trail = np.concatenate([trail, start[None]])
+        if self._set("trail", trail if len(trail) >= 2 else None, lines=True):
+            drawn.add("trail")
+
+    def _draw_others(self, state, col, options, drawn):
+        others = np.flatnonzero(state.active & np.isfinite(state.start).all(axis=1)
+                                & np.isfinite(state.half).all(axis=1))
+        others = others[others != col]
+        if options.show_others and len(others):
+            lo, hi = _box_lo_hi(state.start[others], state.half[others])
+            self._set_quads("others", box_quads(lo, hi))
+            drawn.add("others")
+        else:
+            self._set("others", None)
+
+    # -- camera ----------------------------------------------------------------------------------
+    def _axes_frame(self):
+        up = np.eye(3)[self._up]
+        h1, h2 = np.eye(3)[(self._up + 1) % 3], np.eye(3)[(self._up + 2) % 3]
+        return up, h1, h2
+
+    def _motion_dir(self, horizontal: bool):
+        st = self._state
+        up = self._axes_frame()[0]
+        if st is None or not st.active[self._col]:
+            return None
+        m = np.asarray(st.motion[self._col], np.float64)
+        if not _finite(m):
+            return None
+        if horizontal:
+            m = m - (m @ up) * up
+        n = np.linalg.norm(m)
+        return m / n if n > 1e-9 else None
+
+    def set_camera(self, preset: str) -> None:
+        """Point the camera: "follow" (three-quarter view from above and behind), "motion" (look
+        along the motion), "top" (down the up axis), "side" (across the motion); then frame the
+        focused entity's boxes and swept volumes."""
+        if preset not in PRESETS:
+            raise ValueError(f"camera preset must be one of {', '.join(PRESETS)}, got {preset!r}")
+        self._preset = preset
+        up, h1, h2 = self._axes_frame()
+        view_up = up
+        if preset == "follow":
+            back = self._motion_dir(True)
+            back = -back if back is not None else -h2
+            side = np.cross(up, back)
+            to_cam = 0.75 * back + 0.35 * side + 0.75 * up
+        elif preset == "motion":
+            m = self._motion_dir(False)
+            m = m if m is not None else h2
+            to_cam = -m + 0.25 * up
+        elif preset == "top":
+            to_cam = up
+            m = self._motion_dir(True)
+            view_up = m if m is not None else -h2
+        else:
+            m = self._motion_dir(True)
+            m = m if m is not None else h1
+            to_cam = np.cross(m, up) + 0.12 * up  # motion runs left to right
+        to_cam = to_cam / np.linalg.norm(to_cam)
+        lo, hi = self._interest if self._interest is not None else (np.zeros(3), np.ones(3))
+        centre = (lo + hi) / 2
+        r = max(np.linalg.norm(hi - lo) / 2, 2.5 * (self.session.world.voxel_size if self.session else 1.0))
+        dist = r / np.sin(np.radians(_VIEW_ANGLE / 2)) * 1.05
+        cam = self.plotter.camera
+        cam.focal_point = tuple(centre)
+        cam.position = tuple(centre + to_cam * dist)
+        cam.up = tuple(view_up)
+        self._tracked = None if self._focus is None else self._focus.copy()
+        self._camera_ready = True
+        self._refresh_cutaway()
+        self.plotter.renderer.ResetCameraClippingRange()
+
+    def _track(self):
+        """Move the camera with the focus, keeping its direction and distance."""
+        if self._focus is None:
+            return
+        if self._tracked is not None:
+            delta = self._focus - self._tracked
+            if np.any(delta):
+                cam = self.plotter.camera
+                cam.position = tuple(np.asarray(cam.position) + delta)
+                cam.focal_point = tuple(np.asarray(cam.focal_point) + delta)
+        self._tracked = self._focus.copy()
+        self.plotter.renderer.ResetCameraClippingRange()
+
+    def fit(self) -> None:
+        """Keep the view direction and frame everything drawn (voxels included)."""
+        self.plotter.reset_camera()
+        self._refresh_cutaway()
+        self.plotter.renderer.ResetCameraClippingRange()
+
+    def project(self, point) -> tuple[float, float]:
+        """Window pixel (x right, y down from the top-left corner) where world ``point`` is drawn."""
+        ren = self.plotter.renderer
+        x, y, z = (float(v) for v in point)
+        ren.SetWorldPoint(x, y, z, 1.0)
+        ren.WorldToDisplay()
+        dx, dy, _ = ren.GetDisplayPoint()
+        h = self.plotter.render_window.GetSize()[1]
+        return float(dx), float(h - dy)
+
+
+def _one_face():
+    """A single placeholder quad so the voxel actor is made with its "rgb" array in place."""
+    q = np.array([[[0, 0, 0], [1, 0, 0], [1, 1, 0], [0, 1, 0]]], np.float32)
+    return Faces(q, np.zeros((1, 3), np.uint8), np.zeros((1, 3), np.float32), np.zeros(1, np.int32))

@@ -1,0 +1,48 @@
+"""Trace description for ``resweep info``: header facts plus a streamed scan for bad rows."""
+from __future__ import annotations
+
+import numpy as np
+
+from resweep.core.format.reader import Trace
+
+
+def describe(trace: Trace, max_problems: int = 20) -> dict:
+    """JSON-ready facts about ``trace``; scans every frame block for invalid active rows."""
+    bounds = trace.world_bounds()
+    counts = np.bincount(trace.chunk_blocks.reshape(-1), minlength=1) if trace.chunk_blocks.size else np.zeros(1, int)
+    used = [int(t) for t in np.flatnonzero(counts)]
+    shown_types = sorted(set(used) | set(range(min(trace.shapes.count, 64))))
+    types = [{"type": t, "name": trace.shapes.name(t), "boxes": int(len(trace.shapes.boxes_of(t)))
+              if t < trace.shapes.count else 0, "voxels": int(counts[t]) if t < len(counts) else 0}
+             for t in shown_types]
+    problems = list(trace.problems)
+    active_rows = invalid_rows = 0
+    for blk in trace.iter_frames():
+        act = blk.active
+        active_rows += int(act.sum())
+        with np.errstate(invalid="ignore"):
+            ok = (np.isfinite(blk.start).all(-1) & np.isfinite(blk.motion).all(-1) & np.isfinite(blk.end).all(-1)
+                  & np.isfinite(blk.half).all(-1) & (np.asarray(blk.half) > 0).all(-1))
+        bad = act & ~ok
+        invalid_rows += int(bad.sum())
+        for f, c in zip(*np.nonzero(bad)):
+            if len(problems) >= max_problems:
+                break
+            problems.append(f"frame {blk.f0 + f}, entity {trace.ids[c]}: non-finite position or motion, or "
+                            "non-positive half extents (reported as invalid)")
+    if invalid_rows > max_problems:
+        problems.append(f"... {invalid_rows} invalid rows in all")
+    t = trace.time
+    return {
+        "path": trace.path, "version": 1, "title": trace.title, "producer": trace.producer,
+        "voxel_size": trace.voxel_size, "up_axis": trace.up_axis,
+        "frames": trace.frame_count, "entities": trace.entity_count,
+        "entity_ids": [int(i) for i in trace.ids[:50]], "entity_names": list(trace.names[:50]),
+        "time_span": [float(t[0]), float(t[-1])] if len(t) else None,
+        "frame_dtype": str(trace.frame_dtype),
+        "chunk_size": trace.chunk_size, "chunks": int(len(trace.chunk_origin)),
+        "world_bounds": [[int(x) for x in bounds[0]], [int(x) for x in bounds[1]]] if bounds else None,
+        "edits": int(len(trace.edits)), "block_types": types, "block_type_count": int(trace.shapes.count)
+        if trace.type_count < 65536 else None,
+        "active_entity_frames": active_rows, "invalid_entity_frames": invalid_rows, "problems": problems,
+    }

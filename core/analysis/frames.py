@@ -1,0 +1,198 @@
+"""One open trace, frame by frame: frame states on demand, solved against the world as it stands
+at that frame. The viewer, off-screen pictures and tests read frames through it.
+"""
+from __future__ import annotations
+
+from collections import OrderedDict
+from dataclasses import dataclass, replace
+from pathlib import Path
+
+import numpy as np
+
+from resweep.core.check.kinds import DISCONTINUITY, KINDS, kinds_of
+from resweep.core.errors import ResweepError
+from resweep.core.check.rows import RowResults, solve_rows
+from resweep.core.format.reader import Trace, open_trace
+from resweep.core.solve.settings import SolverSettings
+
+CACHE_FRAMES = 32  # frame states kept; a scrub back and forth over a second of 60 Hz play stays warm
+
+
+class ViewRequestError(ResweepError):
+    """A frame or entity asked of a session does not exist (one line, names the trace)."""
+
+    def __init__(self, path, reason: str):
+        self.path = str(path)
+        self.reason = reason
+        super().__init__(f"{self.path}: {reason}")
+
+
+@dataclass
+class FrameState:
+    """Everything drawn for one frame (N entity columns).
+
+    Attributes:
+        frame: frame index; time: seconds.
+        active: bool (N,).
+        start, motion, recorded_end, half: float64 (N, 3) world units, NaN where inactive.
+        rows: RowResults for all N columns (inactive columns: flags 0, ref_end and points NaN,
+            block -1).
+        world_version: VoxelWorld.version after advancing to this frame.
+    """
+
+    frame: int
+    time: float
+    active: np.ndarray
+    start: np.ndarray
+    motion: np.ndarray
+    recorded_end: np.ndarray
+    half: np.ndarray
+    rows: RowResults
+    world_version: int
+
+    def kinds(self, col: int) -> list[str]:
+        """Divergence kind names of column ``col`` at this frame, in the order of core KINDS."""
+        return kinds_of(self.rows.flags[col])
+
+    def errors(self, col: int) -> dict[str, float | None]:
+        """kind -> error in world units (None where the kind has no error value, e.g. invalid)."""
+        out = {}
+        for k in self.kinds(col):
+            e = float(self.rows.error[col, KINDS.index(k)])
+            out[k] = e if np.isfinite(e) else None
+        return out
+
+
+class TraceSession:
+    """An open trace, its world and the solver settings in use.
+
+    Attributes:
+        trace: the open Trace; path: str; settings: SolverSettings.
+        world: VoxelWorld, advanced to the frame of the last :meth:`frame_state` call.
+    """
+
+    def __init__(self, path, settings: SolverSettings = SolverSettings()):
+        self.trace: Trace = open_trace(path)  # raises TraceFormatError
+        self.path = str(path)
+        self.settings = settings
+        self.world = self.trace.world()
+        self._cache: OrderedDict[int, FrameState] = OrderedDict()
+
+    @property
+    def name(self) -> str:
+        """The trace file's name without folders."""
+        return Path(self.path).name
+
+    def set_settings(self, settings: SolverSettings) -> None:
+        self.settings = settings
+        self._cache.clear()
+
+    def check_frame(self, frame: int) -> int:
+        """``frame`` as an int, or ViewRequestError naming the valid range."""
+        F = self.trace.frame_count
+        if not isinstance(frame, (int, np.integer)) or not 0 <= frame < F:
+            valid = f"valid frames are 0..{F - 1}" if F else "the trace has no frames"
+            raise ViewRequestError(self.path, f"frame {frame} is out of range ({valid})")
+        return int(frame)
+
+    def column_of(self, entity_id: int) -> int:
+        """Column of engine id ``entity_id``, or ViewRequestError listing the ids."""
+        col = self.trace.entity_index(entity_id)
+        if col < 0:
+            ids = ", ".join(str(int(i)) for i in self.trace.ids[:12])
+            more = ", ..." if self.trace.entity_count > 12 else ""
+            raise ViewRequestError(self.path, f"entity id {entity_id} is not in the trace (ids: {ids}{more})")
+        return col
+
+    def frame_state(self, frame: int) -> FrameState:
+        """Read, advance the world to, and re-solve ``frame`` (cached, least recently used out)."""
+        frame = self.check_frame(frame)
+        self.world.advance_to(frame)
+        hit = self._cache.get(frame)
+        if hit is not None:
+            self._cache.move_to_end(frame)
+            if hit.world_version != self.world.version:
+                hit = replace(hit, world_version=self.world.version)
+                self._cache[frame] = hit
+            return hit
+        state = self._solve(frame)
+        self._cache[frame] = state
+        while len(self._cache) > CACHE_FRAMES:
+            self._cache.popitem(last=False)
+        return state
+
+    def _solve(self, frame: int) -> FrameState:
+        tr = self.trace
+        f0 = max(0, frame - 1)
+        blk = tr.frames(f0, frame + 1)
+        i = frame - f0
+        active = np.asarray(blk.active[i], bool)
+        arr = {}
+        for name, src in (("start", blk.start), ("motion", blk.motion), ("end", blk.end), ("half", blk.half)):
+            a = np.asarray(src[i], np.float64).copy()
+            a[~active] = np.nan
+            arr[name] = a
+        N = tr.entity_count
+        P = self.settings.passes
+        rows = RowResults.empty(N, P, self.settings.dtype)
+        rows.ref_end[:] = np.nan
+        rows.points[:] = np.nan
+        rows.error[:] = np.nan
+        cols = np.flatnonzero(active)
+        if len(cols):
+            got = solve_rows(self.world, blk.start[i][cols], blk.motion[i][cols], blk.end[i][cols],
+                             blk.half[i][cols], self.settings)
+            for field in ("ref_end", "npass", "state", "toi", "normal", "voxel", "block", "candidates",
+                          "points", "flags", "error"):
+                getattr(rows, field)[cols] = getattr(got, field)
+        if i == 1:  # the start should continue where the previous frame's recorded end left off
+            tol = self.settings.tolerance * tr.voxel_size
+            prev_end = np.asarray(blk.end[0], np.float64)
+            with np.errstate(invalid="ignore", over="ignore"):
+                gap = np.sqrt(((np.asarray(blk.start[1], np.float64) - prev_end) ** 2).sum(axis=-1))
+            disc = np.asarray(blk.active[0], bool) & active & (gap > tol)
+            rows.flags[disc] |= np.int32(1 << DISCONTINUITY)
+            rows.error[disc, DISCONTINUITY] = gap[disc]
+        return FrameState(frame, float(tr.time[frame]), active, arr["start"], arr["motion"], arr["end"],
+                          arr["half"], rows, self.world.version)
+
+    def trail(self, frame: int, col: int, count: int) -> np.ndarray:
+        """float64 (k, 3) recorded start centres of the up to ``count`` frames before ``frame``
+        where column ``col`` is active, oldest first, world units."""
+        frame = self.check_frame(frame)
+        if count <= 0 or frame == 0:
+            return np.zeros((0, 3))
+        blk = self.trace.frames(max(0, frame - int(count)), frame)
+        pts = np.asarray(blk.start[:, col], np.float64)
+        keep = np.asarray(blk.active[:, col], bool) & np.isfinite(pts).all(axis=1)
+        return pts[keep]
+
+    def nearest_position(self, frame: int, col: int, reach: int = 600):
+        """float64 (3,) recorded start of column ``col`` at the active frame nearest ``frame``
+        (looking up to ``reach`` frames each way, earlier first on ties), or None."""
+        frame = self.check_frame(frame)
+        blk = self.trace.frames(max(0, frame - reach), frame + reach + 1)
+        pts = np.asarray(blk.start[:, col], np.float64)
+        ok = np.flatnonzero(np.asarray(blk.active[:, col], bool) & np.isfinite(pts).all(axis=1))
+        if not len(ok):
+            return None
+        return pts[ok[np.argmin(np.abs(ok + blk.f0 - frame))]]
+
+    def default_column(self, frame: int) -> int:
+        """First column with a divergence at ``frame``, else the first active one, else 0."""
+        st = self.frame_state(frame)
+        diverged = np.flatnonzero(st.rows.flags != 0)
+        if len(diverged):
+            return int(diverged[0])
+        act = np.flatnonzero(st.active)
+        return int(act[0]) if len(act) else 0
+
+    def close(self) -> None:
+        self._cache.clear()
+        self.trace.close()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()

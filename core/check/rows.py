@@ -1,0 +1,143 @@
+"""Row API: re-solve and classify entity-frames given as plain arrays (:func:`solve_rows`).
+
+The solve and the classification run in one parallel kernel (``nb_rows``), so a row is read
+once; :class:`RowResults` holds both the reference solve and the divergence flags.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, fields
+
+import numpy as np
+
+from resweep.core.check import nb_rows
+from resweep.core.check.kinds import KIND_COUNT
+from resweep.core.solve.settings import BROAD_PHASES, SolverSettings
+from resweep.core.world.kernel import kernel_world
+from resweep.core.world.voxel_world import VoxelWorld
+
+
+@dataclass
+class RowResults:
+    """Per-row output of a re-solve (M rows, P = settings.passes).
+
+    Attributes:
+        ref_end: float (M, 3) reference end centre, world units (NaN for invalid rows).
+        npass: int8 (M,) passes run; state: int8 (M,) CLEAR / HIT / STARTED_INSIDE.
+        toi: float (M, P) time of impact per pass, fraction of that pass's motion (1 = clear).
+        normal: int8 (M, P, 3) hit normal (axis unit vectors; several set when faces tied).
+        voxel: int64 (M, P, 3) hit voxel; block: int32 (M, P) hit block type, -1 if clear.
+        candidates: int32 (M, P) solid boxes the narrow phase tested per pass. This depends on the
+            broad phase (``solve_rows(broad=...)``): the swept-box scan tests every box in the
+            swept bounding box, the walk of long motions only boxes it could not rule out first
+            (a subset; it depends on the geometry and the world's extent, not on chunk order or
+            size); every other field is identical for all broad phases.
+        points: float (M, P+1, 3) centre at the start of each pass, then the end (the slide path;
+            entries after the last pass run repeat the end).
+        flags: int32 (M,) bit k set when divergence kind k applies (see kinds.KINDS).
+        error: float (M, KIND_COUNT) error value per kind, world units, NaN where it does not apply.
+    """
+
+    ref_end: np.ndarray
+    npass: np.ndarray
+    state: np.ndarray
+    toi: np.ndarray
+    normal: np.ndarray
+    voxel: np.ndarray
+    block: np.ndarray
+    candidates: np.ndarray
+    points: np.ndarray
+    flags: np.ndarray
+    error: np.ndarray
+
+    @classmethod
+    def alloc(cls, m: int, passes: int, dtype) -> "RowResults":
+        """Uninitialised arrays for ``m`` rows (the kernels write every slot)."""
+        return cls(np.empty((m, 3), dtype), np.empty(m, np.int8), np.empty(m, np.int8), np.empty((m, passes), dtype),
+                   np.empty((m, passes, 3), np.int8), np.empty((m, passes, 3), np.int64),
+                   np.empty((m, passes), np.int32), np.empty((m, passes), np.int32),
+                   np.empty((m, passes + 1, 3), dtype), np.empty(m, np.int32), np.empty((m, KIND_COUNT), dtype))
+
+    def head(self, m: int) -> "RowResults":
+        """Views of the first ``m`` rows."""
+        return RowResults(*(getattr(self, f.name)[:m] for f in fields(self)))
+
+    @classmethod
+    def empty(cls, m: int, passes: int, dtype) -> "RowResults":
+        return cls(np.zeros((m, 3), dtype), np.zeros(m, np.int8), np.zeros(m, np.int8),
+                   np.ones((m, passes), dtype), np.zeros((m, passes, 3), np.int8),
+                   np.zeros((m, passes, 3), np.int64), np.full((m, passes), -1, np.int32),
+                   np.zeros((m, passes), np.int32), np.zeros((m, passes + 1, 3), dtype),
+                   np.zeros(m, np.int32), np.zeros((m, KIND_COUNT), dtype))
+
+
+def _rows(a, dtype) -> np.ndarray:
+    return np.ascontiguousarray(np.asarray(a).reshape(-1, 3), dtype=dtype)
+
+
+def solve_rows(world: VoxelWorld, start, motion, recorded_end, half, settings: SolverSettings,
+               broad: str = "auto", out: RowResults | None = None) -> RowResults:
+    """Re-solve and classify M entity-frames against the world as it stands now.
+
+    Args:
+        start, motion, recorded_end, half: float (M, 3) world units (any float dtype; converted
+            to the settings' precision). ``recorded_end`` may be ``start + motion`` when only the
+            reference is wanted.
+        broad: "auto" (default: scan short motions' swept boxes, walk long ones), "scan" (always
+            the whole swept bounding box) or "walk" (always the walk); see ``BROAD_PHASES``.
+        out: results of at least M rows, of this precision and pass count, to write into (a
+            streaming check reuses one across blocks); the first M rows are returned.
+    """
+    dt = settings.dtype
+    ft = dt.type
+    s, m, e, h = (_rows(a, dt) for a in (start, motion, recorded_end, half))
+    if out is None:
+        out = RowResults.alloc(len(s), settings.passes, dt)
+    elif out.toi.dtype != dt or out.toi.shape[1] != settings.passes or len(out.toi) < len(s):
+        raise ValueError(f"out holds {len(out.toi)} rows of {out.toi.shape[1]} {out.toi.dtype} passes; "
+                         f"{len(s)} rows of {settings.passes} {dt} passes needed")
+    else:
+        out = out.head(len(s))
+    if not len(s):
+        return out
+    vs = world.voxel_size
+    nb_rows.check_rows(s, m, e, h, kernel_world(world, dt), ft(settings.skin * vs), np.int64(settings.passes),
+                        ft(settings.tolerance * vs), np.int64(BROAD_PHASES[broad]), out.ref_end, out.npass,
+                        out.state, out.toi, out.normal, out.voxel, out.block, out.candidates, out.points,
+                        out.flags, out.error)
+    return out
+
+
+def overlap_depths(world: VoxelWorld, centre, half, precision: str = "float64") -> np.ndarray:
+    """Deepest interior overlap with solid of each box: centre, half float (M, 3) -> (M,) world units."""
+    dt = np.dtype(precision)
+    c, h = _rows(centre, dt), _rows(half, dt)
+    out = np.zeros(len(c), dt)
+    if len(c):
+        nb_rows.depth_rows(c, h, kernel_world(world, dt), out)
+    return out
+
+
+def warm_up(precision: str = "float64", frame_dtype=None, depths: bool = False) -> None:
+    """Compile (or load from the on-disk cache) the kernels a check needs in one precision.
+
+    Args:
+        frame_dtype: also the row gather of frame blocks stored in this dtype (float32/float64).
+        depths: also :func:`overlap_depths` (not used by a check).
+    Only what is asked for is loaded: each cached kernel costs start-up time.
+    """
+    from resweep.core.check import nb_gather
+    from resweep.core.jit.nb_jit import compile_lock
+    from resweep.core.world.shapes import unit_cube_shapes
+    w = VoxelWorld(1, np.zeros((1, 3), np.int64), np.ones((1, 1, 1, 1), np.uint16), unit_cube_shapes(2))
+    row = np.array([[0.5, 2.0, 0.5]])
+    with compile_lock():  # one process compiles, the others then load its cache entries
+        solve_rows(w, row, np.array([[0.0, -2.0, 0.0]]), row, np.full((1, 3), 0.25),
+                   SolverSettings(precision=precision))
+        if depths:
+            overlap_depths(w, row, np.full((1, 3), 0.25), precision)
+        if frame_dtype is not None:
+            dt, ft = np.dtype(precision), np.dtype(frame_dtype)
+            one = np.zeros((1, 1, 3), ft)
+            nb_gather.gather_rows(one, one, one, np.ones((1, 1), bool), np.zeros((1, 3)), np.zeros(1, bool), False,
+                                  np.zeros(1, np.int64), np.zeros(1, np.int64), 0.01, np.zeros((1, 3), dt),
+                                  np.zeros((1, 3), dt), np.zeros((1, 3), dt), np.zeros(1), np.zeros(1, bool))

@@ -1,0 +1,191 @@
+"""Whole-trace divergence check: stream frames, re-solve, classify, count (kinds: ``kinds.py``)."""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from resweep.core.check import nb_gather
+from resweep.core.check.kinds import DISCONTINUITY, KINDS, SEVERITY
+from resweep.core.check.rows import RowResults, solve_rows
+from resweep.core.solve.settings import SolverSettings
+from resweep.core.format.reader import Trace
+
+
+
+@dataclass
+class Divergence:
+    """One kind found on one entity-frame. Positions in world units; ``error`` in world units
+    (None for ``invalid``); ``passes`` lists the reference passes as dicts t / normal / voxel."""
+
+    frame: int
+    entity: int
+    kind: str
+    severity: str
+    recorded_end: list
+    reference_end: list
+    error: float | None
+    passes: list
+
+    def as_json(self) -> dict:
+        return {"frame": self.frame, "entity": self.entity, "kind": self.kind, "severity": self.severity,
+                "recorded_end": self.recorded_end, "reference_end": self.reference_end, "error": self.error,
+                "passes": self.passes}
+
+
+@dataclass
+class TraceReport:
+    """Result of checking one trace: exact counts per kind, the first ``limit`` divergences."""
+
+    path: str
+    frames: int
+    entities: int
+    entity_frames: int
+    counts: dict = field(default_factory=lambda: {k: 0 for k in KINDS})
+    divergences: list = field(default_factory=list)
+    cancelled: bool = False
+
+    def failing(self, kinds) -> int:
+        return sum(self.counts[k] for k in kinds)
+
+    def as_json(self) -> dict:
+        return {"path": self.path, "frames": self.frames, "entities": self.entities,
+                "entity_frames": self.entity_frames, "counts": dict(self.counts),
+                "divergences": [d.as_json() for d in self.divergences]}
+
+
+@dataclass
+class BlockResult:
+    """Results of one streamed segment, handed to ``on_block`` listeners (e.g. the viewer).
+
+    Attributes:
+        frame, column: int64 (M,) frame index and entity column of each solved row.
+        rows: RowResults of those rows, with the discontinuity bit merged into ``rows.flags``.
+    """
+
+    frame: np.ndarray
+    column: np.ndarray
+    rows: RowResults
+
+
+def _finite_list(v) -> list:
+    return [float(x) if np.isfinite(x) else None for x in np.asarray(v, np.float64)]
+
+
+def pass_list(rows: RowResults, i: int) -> list:
+    """Reference passes of row ``i`` as JSON-ready dicts."""
+    out = []
+    for k in range(int(rows.npass[i])):
+        hit = rows.block[i, k] >= 0
+        out.append({"t": float(rows.toi[i, k]), "normal": [int(x) for x in rows.normal[i, k]],
+                    "voxel": [int(x) for x in rows.voxel[i, k]] if hit else None})
+    return out
+
+
+def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit: int = 1000,
+                progress=None, on_block=None, should_stop=None, rows_per_block: int = 1 << 17) -> TraceReport:
+    """Re-solve every active entity-frame of ``trace`` and classify the recorded run.
+
+    Frames stream in blocks of about ``rows_per_block`` entity-frames (the next block is read
+    while this one is solved); only counts and the first ``limit`` divergences are kept, so
+    memory does not grow with the trace. ``progress(frames_done, frames_total)`` is called per
+    block, ``on_block(BlockResult)`` per solved segment, and ``should_stop()`` may return True to
+    cancel (the report then has ``cancelled`` set). World edits are applied as the stream passes
+    their frame (:meth:`VoxelWorld.advance_to`), never by rebuilding the world.
+    """
+    report = TraceReport(trace.path, trace.frame_count, trace.entity_count, 0)
+    world = trace.world()
+    tol = settings.tolerance * trace.voxel_size
+    dt = settings.dtype
+    edit_frames = world.edit_frames()
+    N = trace.entity_count
+    prev_end = np.zeros((N, 3))  # float64 recorded end of the frame before the block
+    prev_active = np.zeros(N, bool)
+    has_prev = False
+    buf = _Buffers(dt, settings.passes, keep_rows=on_block is None)
+    for blk in trace.iter_frames(rows_per_block, prefetch=True):
+        if should_stop is not None and should_stop():
+            report.cancelled = True
+            break
+        # Split the block where world edits apply, so each segment sees one world.
+        cuts = edit_frames[(edit_frames > blk.f0) & (edit_frames < blk.f1)]
+        bounds = [blk.f0, *cuts.tolist(), blk.f1]
+        for a, b in zip(bounds[:-1], bounds[1:]):
+            world.advance_to(a)
+            fr, col = np.nonzero(blk.active[a - blk.f0:b - blk.f0])
+            fr = fr + (a - blk.f0)
+            if not len(fr):
+                continue
+            M = len(fr)
+            start, motion, end, gap, disc = buf.rows_in(M)
+            nb_gather.gather_rows(blk.start, blk.motion, blk.end, blk.active, prev_end, prev_active, has_prev,
+                                 fr, col, tol, start, motion, end, gap, disc)
+            half = blk.half[0][col] if blk.half.strides[0] == 0 else blk.half[fr, col]
+            rows = solve_rows(world, start, motion, end, half, settings, out=buf.rows_out(M))
+            rows.flags |= disc.astype(np.int32) << DISCONTINUITY
+            rows.error[disc, DISCONTINUITY] = gap[disc]
+            report.entity_frames += M
+            _count(report, rows.flags)
+            _collect(report, trace, rows, blk.end, fr, col, blk.f0, limit)
+            if on_block is not None:
+                on_block(BlockResult(fr + blk.f0, col, rows))
+        prev_end = np.asarray(blk.end[-1], np.float64)
+        prev_active = np.ascontiguousarray(blk.active[-1])
+        has_prev = True
+        if progress is not None:
+            progress(blk.f1, trace.frame_count)
+    return report
+
+
+class _Buffers:
+    """Row arrays reused from segment to segment (fresh memory per block costs page faults, about
+    a fifth of a big check). Results are reused only when no listener may keep them."""
+
+    def __init__(self, dtype, passes: int, keep_rows: bool):
+        self.dtype, self.passes, self.keep_rows = dtype, passes, keep_rows
+        self.cap = 0
+
+    def _grow(self, m: int):
+        if m > self.cap:
+            self.cap = m
+            dt = self.dtype
+            self.inputs = (np.empty((m, 3), dt), np.empty((m, 3), dt), np.empty((m, 3), dt), np.empty(m),
+                           np.empty(m, bool))
+            self.rows = RowResults.alloc(m, self.passes, dt) if self.keep_rows else None
+
+    def rows_in(self, m: int):
+        """start, motion, recorded end float (m, 3); gap float64 (m,); disc bool (m,)."""
+        self._grow(m)
+        return tuple(a[:m] for a in self.inputs)
+
+    def rows_out(self, m: int):
+        self._grow(m)
+        return self.rows
+
+
+def _count(report: TraceReport, flags: np.ndarray):
+    nz = flags[flags != 0]
+    if not len(nz):
+        return
+    for k, kind in enumerate(KINDS):
+        report.counts[kind] += int(np.count_nonzero(nz & (1 << k)))
+
+
+def _collect(report: TraceReport, trace: Trace, rows: RowResults, block_end, fr, cols, f0: int, limit: int):
+    """Append the divergences of solved rows (frames ``f0 + fr``, columns ``cols``) up to ``limit``;
+    recorded ends are read from the block (file dtype) only for the rows kept."""
+    if len(report.divergences) >= limit:
+        return
+    for i in np.flatnonzero(rows.flags):
+        f = int(rows.flags[i])
+        for k, kind in enumerate(KINDS):
+            if not f & (1 << k):
+                continue
+            if len(report.divergences) >= limit:
+                return
+            err = float(rows.error[i, k])
+            report.divergences.append(Divergence(
+                int(f0 + fr[i]), int(trace.ids[cols[i]]), kind, SEVERITY[kind],
+                _finite_list(block_end[fr[i], cols[i]]), _finite_list(rows.ref_end[i]),
+                err if np.isfinite(err) else None, pass_list(rows, i)))
+

@@ -1,0 +1,1 @@
+"""Our own demo scenario (the quarry) and the toy engine that records its sample traces."""

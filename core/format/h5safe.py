@@ -1,0 +1,165 @@
+"""Defensive access to untrusted HDF5 files: links, storage, filters and declared sizes.
+
+Trace files arrive attached to bug reports, so every object is checked before it is read:
+no external links, no soft links that dangle or leave the file, no external raw storage, no
+virtual datasets, only the filters that ship with h5py, and no dataset that declares more data
+than a file of its size could plausibly hold.
+"""
+from __future__ import annotations
+
+import os
+
+import h5py
+import numpy as np
+
+from resweep.core.errors import TraceFormatError
+
+#: Filters that ship with h5py (HDF5 filter ids): deflate/gzip, shuffle, fletcher32, lzf.
+ALLOWED_FILTERS = {1: "gzip", 2: "shuffle", 3: "fletcher32", 32000: "lzf"}
+#: deflate tops out near 1032:1 on constant data (common practice); allow a little more.
+MAX_EXPANSION = 1100
+SLACK_BYTES = 1 << 20
+#: Hard cap for a dataset read whole (world, entity tables), whatever the file size.
+MAX_WHOLE_READ = 8 << 30
+_MAX_LINK_HOPS = 16
+
+
+class SafeFile:
+    """A read-only h5py file whose objects are fetched through link and storage checks."""
+
+    def __init__(self, path):
+        self.path = str(path)
+        try:
+            size = os.path.getsize(self.path)
+        except OSError as exc:
+            raise TraceFormatError(path, None, f"cannot open: {exc.strerror or exc}") from None
+        if os.path.isdir(self.path):
+            raise TraceFormatError(path, None, "is a directory, not a trace file")
+        self.size = size
+        if size == 0:
+            raise TraceFormatError(path, None, "empty file (0 bytes), not an HDF5 trace")
+        try:
+            is_h5 = h5py.is_hdf5(self.path)
+        except OSError as exc:
+            raise TraceFormatError(path, None, f"cannot open: {exc}") from None
+        if not is_h5:
+            raise TraceFormatError(path, None, "not an HDF5 file (no HDF5 signature)")
+        try:
+            self.file = h5py.File(self.path, "r", locking=False)
+        except OSError as exc:
+            raise TraceFormatError(path, None, f"cannot open as HDF5 (truncated or corrupt?): {exc}") from None
+
+    def close(self):
+        try:
+            self.file.close()
+        except Exception:  # closing a broken file must never mask the first error
+            pass
+
+    def fail(self, name, reason):
+        return TraceFormatError(self.path, name, reason)
+
+    def _resolve(self, name: str, hops: int = 0):
+        """Follow ``name`` component by component, refusing links that leave the file."""
+        if hops > _MAX_LINK_HOPS:
+            raise self.fail(name, "soft links loop or nest too deeply")
+        node = self.file
+        parts = [p for p in name.split("/") if p]
+        walked = ""
+        for i, part in enumerate(parts):
+            walked += "/" + part
+            try:
+                link = node.get(part, getlink=True)
+            except (OSError, KeyError, ValueError) as exc:
+                raise self.fail(walked, f"cannot read link: {exc}") from None
+            if link is None:
+                return None
+            if isinstance(link, h5py.ExternalLink):
+                raise self.fail(walked, f"is an external link to {link.filename}:{link.path}; "
+                                        "external links are refused (they would read another file)")
+            if isinstance(link, h5py.SoftLink):
+                target = link.path if link.path.startswith("/") else walked.rsplit("/", 1)[0] + "/" + link.path
+                rest = "/".join(parts[i + 1:])
+                resolved = self._resolve(target + ("/" + rest if rest else ""), hops + 1)
+                if resolved is None:
+                    raise self.fail(walked, f"is a soft link to {link.path}, which does not exist in the file")
+                return resolved
+            try:
+                node = node[part]
+            except (OSError, KeyError, ValueError) as exc:
+                raise self.fail(walked, f"cannot open object (truncated or corrupt?): {exc}") from None
+        return node
+
+    def group(self, name: str, required: bool = True):
+        node = self._resolve(name)
+        if node is None:
+            if required:
+                raise self.fail(name, "required group is missing")
+            return None
+        if not isinstance(node, h5py.Group):
+            raise self.fail(name, "must be a group, found a dataset")
+        return node
+
+    def dataset(self, name: str, required: bool = True, whole: bool = True):
+        """The dataset at ``name`` after storage checks; None if absent and not required.
+
+        ``whole`` marks datasets read in one go, which get the absolute size cap too.
+        """
+        node = self._resolve(name)
+        if node is None:
+            if required:
+                raise self.fail(name, "required dataset is missing")
+            return None
+        if not isinstance(node, h5py.Dataset):
+            raise self.fail(name, "must be a dataset, found a group")
+        try:
+            if node.is_virtual:
+                raise self.fail(name, "is a virtual dataset; refused (it would read other files)")
+            if node.external:
+                raise self.fail(name, "uses external raw storage; refused (it would read other files)")
+            plist = node.id.get_create_plist()
+            for k in range(plist.get_nfilters()):
+                fid = plist.get_filter(k)[0]
+                if fid not in ALLOWED_FILTERS:
+                    raise self.fail(name, f"uses HDF5 filter {fid}, which is not one of gzip, lzf, shuffle, "
+                                          "fletcher32 (the filters that ship with h5py)")
+            shape = node.shape
+            itemsize = node.dtype.itemsize
+        except TraceFormatError:
+            raise
+        except (OSError, ValueError, TypeError) as exc:
+            raise self.fail(name, f"cannot read dataset header (truncated or corrupt?): {exc}") from None
+        if shape is None:
+            raise self.fail(name, "has no data (null dataspace)")
+        declared = int(np.prod(shape, dtype=object)) * int(itemsize)
+        limit = self.size * MAX_EXPANSION + SLACK_BYTES
+        if declared > limit:
+            raise self.fail(name, f"declares {declared:,} bytes of data, more than a {self.size:,}-byte file "
+                                  "can plausibly hold; refused")
+        if whole and declared > MAX_WHOLE_READ:
+            raise self.fail(name, f"declares {declared:,} bytes, over the {MAX_WHOLE_READ:,}-byte limit for "
+                                  "data read whole")
+        return node
+
+    def read(self, ds, sel=()):
+        """``ds[sel]`` with read failures turned into one-line errors."""
+        try:
+            return ds[sel]
+        except (OSError, ValueError, TypeError, RuntimeError) as exc:
+            raise self.fail(ds.name, f"cannot read data (truncated or corrupt?): {exc}") from None
+
+    def read_strings(self, ds) -> tuple[str, ...]:
+        if h5py.check_string_dtype(ds.dtype) is None:
+            raise self.fail(ds.name, f"must hold strings, found dtype {ds.dtype}")
+        try:
+            vals = ds.asstr(errors="replace")[()]
+        except (OSError, ValueError, TypeError, RuntimeError) as exc:
+            raise self.fail(ds.name, f"cannot read strings: {exc}") from None
+        return tuple(str(v) for v in np.atleast_1d(vals))
+
+    def attr(self, obj, key, default=None):
+        try:
+            if key not in obj.attrs:
+                return default
+            return obj.attrs[key]
+        except (OSError, ValueError, TypeError, KeyError) as exc:
+            raise self.fail(f"{obj.name}@{key}", f"cannot read attribute: {exc}") from None

@@ -1,0 +1,372 @@
+"""Reader of trace format v1 (see ``trace_format.md`` beside this module).
+
+:func:`open_trace` validates every header, shape, dtype and range that can be checked without
+reading the frames, then hands out frames in bounded blocks (:meth:`Trace.frames`), so memory
+does not grow with trace length. Files are opened read-only and never modified.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from resweep.core.errors import TraceFormatError
+from resweep.core.format.datasets import FRAME_VECTORS, DatasetSpec, spec
+from resweep.core.format.h5safe import SafeFile
+from resweep.core.world.shapes import IMPLICIT_TYPES, BlockShapes, unit_cube_shapes
+from resweep.core.world.voxel_world import VoxelWorld
+
+FORMAT_NAME = "resweep-trace"
+FORMAT_VERSION = 1
+UP_AXES = ("x", "y", "z")
+#: Voxel coordinates must stay well inside int64 arithmetic and float64 exactness.
+MAX_COORD = 1 << 40
+
+
+@dataclass(frozen=True)
+class FrameBlock:
+    """Frames ``[f0, f1)`` of a trace.
+
+    Attributes:
+        start, motion, end: float (n, N, 3) in the file's frame dtype, world units.
+        active: bool (n, N).
+        half: float (n, N, 3) half extents in effect per row (per-frame override or entity table).
+    """
+
+    f0: int
+    f1: int
+    start: np.ndarray
+    motion: np.ndarray
+    end: np.ndarray
+    active: np.ndarray
+    half: np.ndarray
+
+
+class Trace:
+    """An open, validated trace. Use as a context manager or call :meth:`close`.
+
+    Attributes:
+        path: str; voxel_size: float; up_axis: "x" | "y" | "z"; title, producer: str.
+        frame_count F, entity_count N: int; frame_dtype: np.dtype (float32 or float64).
+        time: float64 (F,) seconds. ids: int64 (N,). names: tuple of N str.
+        half_extents: float64 (N, 3) entity table. shapes: BlockShapes.
+        chunk_size: int; chunk_origin: int64 (C, 3); chunk_blocks: uint16 (C, S, S, S);
+        edits: int64 (E, 5).
+        problems: list of str, validation findings that do not stop a check (e.g. bad entity sizes).
+    """
+
+    def __init__(self, path):
+        self._f = SafeFile(path)
+        self.path = self._f.path
+        try:
+            self._load()
+        except Exception:
+            self._f.close()
+            raise
+
+    # -- loading -----------------------------------------------------------------------------
+    def _load(self):
+        f = self._f
+        root = f.file
+        fmt = _as_str(f.attr(root, "format"))
+        if fmt is None:
+            raise f.fail("/", "root attribute 'format' is missing (expected \"resweep-trace\")")
+        if fmt != FORMAT_NAME:
+            raise f.fail("/", f"root attribute 'format' is {fmt!r}, expected {FORMAT_NAME!r}")
+        version = f.attr(root, "version")
+        if version is None:
+            raise f.fail("/", "root attribute 'version' is missing")
+        if not _is_int(version):
+            raise f.fail("/", f"root attribute 'version' must be an integer, found {version!r}")
+        if int(version) != FORMAT_VERSION:
+            raise f.fail("/", f"trace format version {int(version)} is not supported (this resweep reads "
+                              f"version {FORMAT_VERSION})")
+        vs = f.attr(root, "voxel_size", 1.0)
+        if not _is_real(vs) or not np.isfinite(float(vs)) or float(vs) <= 0:
+            raise f.fail("/", f"root attribute 'voxel_size' must be a finite number > 0, found {vs!r}")
+        self.voxel_size = float(vs)
+        up = _as_str(f.attr(root, "up_axis", "y"))
+        if up not in UP_AXES:
+            raise f.fail("/", f"root attribute 'up_axis' must be one of x, y, z, found {up!r}")
+        self.up_axis = up
+        self.title = _as_str(f.attr(root, "title", "")) or ""
+        self.producer = _as_str(f.attr(root, "producer", "")) or ""
+        self.problems: list[str] = []
+        self._load_blocks()
+        self._load_world()
+        self._load_entities()
+        self._load_frames()
+
+    def _load_blocks(self):
+        f = self._f
+        g = f.group("/blocks", required=False)
+        if g is None:
+            self.shapes = unit_cube_shapes()
+            self.type_count = IMPLICIT_TYPES
+            return
+        bs = f.dataset("/blocks/box_start")
+        bx = f.dataset("/blocks/boxes")
+        _check(f, bs, spec("/blocks/box_start"), {})
+        if bs.shape[0] < 2:
+            raise f.fail(bs.name, "needs at least 2 entries (type 0 air plus one type)")
+        box_start = f.read(bs).astype(np.int64)
+        _check(f, bx, spec("/blocks/boxes"), {})
+        boxes = f.read(bx).astype(np.float64)
+        if box_start[0] != 0:
+            raise f.fail(bs.name, f"first offset must be 0, found {box_start[0]}")
+        if (np.diff(box_start) < 0).any():
+            raise f.fail(bs.name, "offsets must be non-decreasing")
+        if box_start[-1] != len(boxes):
+            raise f.fail(bs.name, f"last offset is {box_start[-1]} but /blocks/boxes has {len(boxes)} rows")
+        if box_start[1] != 0:
+            raise f.fail(bs.name, "type 0 is air and must have no boxes")
+        if not np.isfinite(boxes).all():
+            raise f.fail(bx.name, "holds non-finite coordinates")
+        if not (boxes[:, :3] < boxes[:, 3:]).all():
+            bad = int(np.argmax(~(boxes[:, :3] < boxes[:, 3:]).all(axis=1)))
+            raise f.fail(bx.name, f"row {bad}: min must be < max on every axis")
+        if (boxes < -1).any() or (boxes > 2).any():
+            raise f.fail(bx.name, "coordinates must lie within [-1, 2] voxel-local units")
+        T = len(box_start) - 1
+        names = None
+        nd = f.dataset("/blocks/names", required=False)
+        if nd is not None:
+            _check(f, nd, spec("/blocks/names"), {"T": T})
+            names = f.read_strings(nd)
+        if names is None:
+            names = ("air",) + tuple(f"type {t}" for t in range(1, T))
+        self.shapes = BlockShapes(box_start, boxes, tuple(names))
+        self.type_count = T
+
+    def _load_world(self):
+        f = self._f
+        g = f.group("/world")
+        S = f.attr(g, "chunk_size")
+        if S is None:
+            raise f.fail("/world", "attribute 'chunk_size' is missing")
+        if not _is_int(S) or int(S) < 1 or int(S) > 1024:
+            raise f.fail("/world", f"attribute 'chunk_size' must be an integer in 1..1024, found {S!r}")
+        S = int(S)
+        od = f.dataset("/world/chunk_origin")
+        _check(f, od, spec("/world/chunk_origin"), {})
+        bd = f.dataset("/world/chunk_blocks")
+        C = od.shape[0]
+        _check(f, bd, spec("/world/chunk_blocks"), {"C": C, "S": S}, " to match chunk_origin and chunk_size")
+        origin = f.read(od).astype(np.int64)
+        if (np.abs(origin) > MAX_COORD).any():
+            raise f.fail(od.name, f"coordinates beyond +-{MAX_COORD} voxels are refused")
+        if (origin % S).any():
+            bad = int(np.argmax((origin % S).any(axis=1)))
+            raise f.fail(od.name, f"row {bad} {origin[bad].tolist()} is not a multiple of chunk_size {S}")
+        if len(np.unique(origin, axis=0)) != C:
+            raise f.fail(od.name, "holds duplicate chunk origins")
+        blocks = f.read(bd)
+        if C and self.type_count < IMPLICIT_TYPES and int(blocks.max()) >= self.type_count:
+            raise f.fail(bd.name, f"holds block type {int(blocks.max())}, but /blocks defines only "
+                                  f"{self.type_count} types")
+        ed = f.dataset("/world/edits", required=False)
+        if ed is not None:
+            _check(f, ed, spec("/world/edits"), {})
+            edits = f.read(ed).astype(np.int64)
+            if (np.abs(edits[:, 1:4]) > MAX_COORD).any():
+                raise f.fail(ed.name, f"voxel coordinates beyond +-{MAX_COORD} are refused")
+            if len(edits) and (edits[:, 4].min() < 0 or edits[:, 4].max() >= self.type_count):
+                raise f.fail(ed.name, f"block types must lie in 0..{self.type_count - 1}")
+        else:
+            edits = np.zeros((0, 5), np.int64)
+        self.chunk_size = S
+        self.chunk_origin = origin
+        self.chunk_blocks = blocks
+        self.edits = edits
+
+    def _load_entities(self):
+        f = self._f
+        f.group("/entities")
+        idd = f.dataset("/entities/id")
+        _check(f, idd, spec("/entities/id"), {})
+        ids = f.read(idd).astype(np.int64)
+        if len(np.unique(ids)) != len(ids):
+            raise f.fail(idd.name, "entity ids must be unique")
+        N = len(ids)
+        hd = f.dataset("/entities/half_extents")
+        _check(f, hd, spec("/entities/half_extents"), {"N": N}, " to match /entities/id")
+        half = f.read(hd).astype(np.float64)
+        bad = ~(np.isfinite(half).all(axis=1) & (half > 0).all(axis=1))
+        for i in np.flatnonzero(bad)[:5]:
+            self.problems.append(f"/entities/half_extents: entity {ids[i]} has non-positive or non-finite half "
+                                 f"extents {half[i].tolist()} (its rows are reported invalid)")
+        nd = f.dataset("/entities/name", required=False)
+        if nd is not None:
+            _check(f, nd, spec("/entities/name"), {"N": N})
+        names = f.read_strings(nd) if nd is not None else tuple(f"entity {i}" for i in ids)
+        self.ids = ids
+        self.half_extents = half
+        self.names = names
+        self.entity_count = N
+
+    def _load_frames(self):
+        f = self._f
+        f.group("/frames")
+        N = self.entity_count
+        td = f.dataset("/frames/time")
+        _check(f, td, spec("/frames/time"), {})
+        F = td.shape[0]
+        self._ds = {}
+        dtype = None
+        for name in FRAME_VECTORS:
+            ds = f.dataset(f"/frames/{name}", whole=False)
+            _check(f, ds, spec(f"/frames/{name}"), {"F": F, "N": N}, " = (frames, entities, 3)")
+            dtype = np.promote_types(dtype, ds.dtype) if dtype is not None else ds.dtype
+            self._ds[name] = ds
+        act = f.dataset("/frames/active", required=False, whole=False)
+        if act is not None:
+            if act.dtype != np.dtype("bool") and not (act.dtype.kind in "iu" and act.dtype.itemsize == 1):
+                raise f.fail(act.name, f"dtype must be bool, found {act.dtype}")
+            _check(f, act, spec("/frames/active"), {"F": F, "N": N}, " = (frames, entities)")
+        self._ds["active"] = act
+        hov = f.dataset("/frames/half_extents", required=False, whole=False)
+        if hov is not None:
+            _check(f, hov, spec("/frames/half_extents"), {"F": F, "N": N}, " = (frames, entities, 3)")
+        self._ds["half"] = hov
+        time = f.read(td)
+        if not np.isfinite(time).all():
+            raise f.fail(td.name, "holds non-finite times")
+        if (np.diff(time) < 0).any():
+            k = int(np.argmax(np.diff(time) < 0))
+            raise f.fail(td.name, f"must be non-decreasing (frame {k + 1} is earlier than frame {k})")
+        self.time = time
+        self.frame_count = F
+        self.frame_dtype = np.dtype(dtype)
+
+    # -- access ------------------------------------------------------------------------------
+    def world(self) -> VoxelWorld:
+        """A fresh world at the recorded chunks (no edits applied yet)."""
+        return VoxelWorld(self.chunk_size, self.chunk_origin, self.chunk_blocks, self.shapes,
+                          self.voxel_size, self.edits)
+
+    def frames(self, f0: int, f1: int) -> FrameBlock:
+        """Frames ``[f0, f1)`` (clamped to the trace)."""
+        f0 = max(0, int(f0))
+        f1 = min(self.frame_count, int(f1))
+        f1 = max(f0, f1)
+        rd = self._f.read
+        start = rd(self._ds["start"], np.s_[f0:f1])
+        motion = rd(self._ds["motion"], np.s_[f0:f1])
+        end = rd(self._ds["end"], np.s_[f0:f1])
+        n = f1 - f0
+        act = self._ds["active"]
+        active = rd(act, np.s_[f0:f1]).astype(bool) if act is not None else np.ones((n, self.entity_count), bool)
+        hov = self._ds["half"]
+        if hov is not None:
+            half = rd(hov, np.s_[f0:f1])
+        else:
+            half = np.broadcast_to(self.half_extents[None], (n, self.entity_count, 3))
+        return FrameBlock(f0, f1, start, motion, end, active, half)
+
+    def block_frames(self, rows: int = 1 << 17) -> int:
+        """Frames per streamed block so that one block holds about ``rows`` entity-frames.
+
+        Rounded down to whole storage chunks of the frame datasets when a block spans several,
+        so every compressed chunk is read and decompressed once.
+        """
+        step = max(1, min(4096, rows // max(1, self.entity_count)))
+        chunks = self._ds["start"].chunks
+        if chunks and step >= chunks[0]:
+            step -= step % chunks[0]
+        return step
+
+    def iter_frames(self, rows: int = 1 << 17, f0: int = 0, f1: int | None = None, prefetch: bool = False):
+        """Yield :class:`FrameBlock` s covering ``[f0, f1)`` in bounded blocks.
+
+        With ``prefetch`` the next block is read on a background thread while the caller works
+        on the current one (at most two blocks are held; read errors surface in the caller).
+        """
+        f1 = self.frame_count if f1 is None else min(f1, self.frame_count)
+        step = self.block_frames(rows)
+        firsts = range(f0, f1, step)
+        if not prefetch or len(firsts) < 2:
+            for a in firsts:
+                yield self.frames(a, min(a + step, f1))
+            return
+        from concurrent.futures import ThreadPoolExecutor
+        with ThreadPoolExecutor(1, thread_name_prefix="resweep-read") as pool:
+            ahead = pool.submit(self.frames, firsts[0], min(firsts[0] + step, f1))
+            for a in firsts[1:]:
+                blk = ahead.result()
+                ahead = pool.submit(self.frames, a, min(a + step, f1))
+                yield blk
+            yield ahead.result()
+
+    def entity_index(self, entity_id: int) -> int:
+        """Column of engine id ``entity_id``, or -1."""
+        hit = np.flatnonzero(self.ids == int(entity_id))
+        return int(hit[0]) if len(hit) else -1
+
+    def world_bounds(self):
+        """(lo, hi) int64 (3,) voxel bounds of all chunks, or None for an empty world."""
+        if not len(self.chunk_origin):
+            return None
+        return self.chunk_origin.min(axis=0), self.chunk_origin.max(axis=0) + self.chunk_size
+
+    def close(self):
+        self._f.close()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+
+def open_trace(path) -> Trace:
+    """Open and validate a trace; raises :class:`TraceFormatError` with a one-line reason."""
+    return Trace(path)
+
+
+def _as_str(v):
+    if v is None:
+        return None
+    if isinstance(v, bytes):
+        return v.decode("utf-8", "replace")
+    if isinstance(v, np.ndarray) and v.shape == ():
+        v = v[()]
+        return _as_str(v)
+    if isinstance(v, (str, np.str_)):
+        return str(v)
+    return repr(v)
+
+
+def _is_int(v) -> bool:
+    return isinstance(v, (int, np.integer)) and not isinstance(v, (bool, np.bool_))
+
+
+def _is_real(v) -> bool:
+    return isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, (bool, np.bool_))
+
+
+_KIND_LETTERS = {"integer": "i", "float": "f"}
+
+
+def _check(f: SafeFile, ds, sp: DatasetSpec, dims: dict, why: str = ""):
+    """Refuse ``ds`` unless its dtype and shape follow table row ``sp`` (symbols from ``dims``)."""
+    kind_words = [d for d in sp.dtypes if d in _KIND_LETTERS]
+    if kind_words:
+        _need_dtype(f, ds, _KIND_LETTERS[kind_words[0]], kind_words[0])
+    elif sp.dtypes != ("string",) and sp.dtypes != ("bool",) and str(ds.dtype) not in sp.dtypes:
+        raise f.fail(ds.name, f"dtype must be {' or '.join(sp.dtypes)}, found {ds.dtype}")
+    want = sp.resolve(dims)
+    text = "(" + ", ".join(str(w) if w is not None else str(s) for w, s in zip(want, sp.shape)) + \
+        ("," if len(want) == 1 else "") + ")"
+    _need_shape(f, ds, want, text + why)
+
+
+def _need_dtype(f: SafeFile, ds, kinds: str, what: str):
+    if ds.dtype.kind not in kinds:
+        raise f.fail(ds.name, f"dtype must be {what}, found {ds.dtype}")
+
+
+def _need_shape(f: SafeFile, ds, want, text: str):
+    shape = ds.shape
+    ok = len(shape) == len(want) and all(w is None or w == s for w, s in zip(want, shape))
+    if not ok:
+        raise f.fail(ds.name, f"shape must be {text}, found {shape}")

@@ -1,0 +1,222 @@
+"""Numba kernels of the reference swept-AABB test: narrow phase and the simple broad phase.
+
+Method (published, common practice in games):
+- broad phase: every solid block box whose voxel lies in the swept bounding box of the pass
+  (box at pass start union box at pass end), widened by a voxel when shapes reach past their cell
+  (:func:`scan_cells` over :func:`nb_world.sweep_range`). Long motions instead walk only the cells
+  the moving box can reach (``nb_traverse``); both give the same result;
+- narrow phase: the moving box against each static box as a ray from the box centre against the
+  static box expanded by the half extents (Minkowski sum), intersected slab by slab: the
+  moving-AABB interval test of Ericson, *Real-Time Collision Detection* (2005), sec. 5.5;
+- the minimum entry time over all candidates (``nb_solve`` then moves there, stops ``skin`` short
+  of the hit face, removes the motion along the hit normal and repeats: slide).
+
+Contact needs overlap of open interiors, so boxes that only touch never collide: a box sliding
+on a floor of many blocks never catches on the seams. Faces entered at exactly the same time all
+block their axes (an edge entry only when no face entry at that instant covers one of its axes, see
+``blocked_axes``) and the reported hit voxel is the lexicographically smallest among them, so the
+result never depends on the order candidates are visited in.
+
+The search state travels as the named tuple :class:`Search` (see its fields).
+"""
+from __future__ import annotations
+
+from typing import NamedTuple
+
+import numpy as np
+
+from resweep.core.jit.nb_float import fl
+from resweep.core.jit.nb_jit import hot, kernel
+from resweep.core.solve.settings import CLEAR, HIT, STARTED_INSIDE  # noqa: F401  (row states, re-exported)
+from resweep.core.world.nb_world import box_corners, chunk_lookup
+
+
+
+class Search(NamedTuple):
+    """State of one search for the earliest contact (a numba named tuple, kept in registers).
+
+    Attributes:
+        tmin: float, entry time in [0, 1] (1 while clear).
+        axes: int64, entry axes of the boxes tied at ``tmin``, packed by :func:`pack_entry` (0
+            while clear; :func:`blocked_axes` turns them into the axes to block).
+        hx, hy, hz: int64 hit voxel; hb: int64 box index; htype: int64 block type (-1 while clear).
+        cand: int64, boxes the narrow phase tested.
+    """
+
+    tmin: float
+    axes: np.int64
+    hx: np.int64
+    hy: np.int64
+    hz: np.int64
+    hb: np.int64
+    htype: np.int64
+    cand: np.int64
+
+
+#: Search modes: the earliest hit of a pass, or only whether the path enters any box at t in [0, 1).
+FIRST_HIT, ENTERS = 0, 1
+
+
+@kernel(inline="always")
+def box_interval(p, r, h, vlo, vhi, bb, vs):
+    """Slab test of the moving box against a static box (Ericson 2005, sec. 5.5).
+
+    The static box spans ``(vlo + bb[:3]) * vs`` to ``(vhi + bb[3:]) * vs`` per axis: a block box
+    ``bb`` (float 6-tuple, voxel-local min then max) of voxel ``vlo = vhi`` (float 3-tuple), or
+    the bounds of a whole region of voxels (see nb_traverse).
+
+    Returns (te, tx, entry_axes): the open time interval of interior overlap along the ray
+    ``p + t r`` against the expanded box, and a bitmask of the axes whose slab is entered last.
+    te >= tx means the interiors never overlap. A NaN leaves te low and tx high.
+    """
+    te = fl(vs, -np.inf)
+    tx = fl(vs, np.inf)
+    axes = 0
+    for a in range(3):
+        lo = (vlo[a] + bb[a]) * vs - h[a]
+        hi = (vhi[a] + bb[a + 3]) * vs + h[a]
+        if r[a] == 0:
+            if not (lo < p[a] and p[a] < hi):
+                return fl(vs, 1), fl(vs, 0), 0  # parallel and outside the slab: never overlaps
+            continue
+        t1 = (lo - p[a]) / r[a]
+        t2 = (hi - p[a]) / r[a]
+        if t1 > t2:
+            t1, t2 = t2, t1
+        if t1 > te:
+            te = t1
+            axes = 1 << a
+        elif t1 == te:
+            axes |= 1 << a
+        if t2 < tx:
+            tx = t2
+    return te, tx, axes
+
+
+@kernel(inline="always")
+def inside_axis(p, r, h, v, bb, vs):
+    """For a box the sweep starts inside: the least-penetration axis bit if the motion digs deeper
+    along it (the contact then blocks that axis at t = 0), else 0 (the motion is leaving)."""
+    best = fl(vs, np.inf)
+    axis = -1
+    sign = 0
+    for a in range(3):
+        lo = (v[a] + bb[a]) * vs - h[a]
+        hi = (v[a] + bb[a + 3]) * vs + h[a]
+        dlo = p[a] - lo
+        dhi = hi - p[a]
+        d = min(dlo, dhi)
+        if d < best:
+            best = d
+            axis = a
+            sign = 1 if dhi < dlo else -1  # outward normal of the nearer face
+    if axis >= 0 and r[axis] * sign < 0:
+        return 1 << axis
+    return 0
+
+
+@kernel()  # called once per pass or row: not worth inlining (compile time)
+def start_best(vs):
+    """The search state before any box is tested."""
+    zero = np.int64(0)
+    return Search(fl(vs, 1), zero, zero, zero, zero, np.int64(-1), np.int64(-1), zero)
+
+
+@kernel(inline="always")
+def pack_entry(eax):
+    """Search-state form of one box's entry axes: a face entry (one slab entered last) keeps its
+    axis bit (bits 0..2); an edge or corner entry (several slabs entered at the same instant) is
+    recorded as the flag bit ``8 << eax`` so :func:`blocked_axes` can tell the two apart."""
+    if eax == 1 or eax == 2 or eax == 4:
+        return np.int64(eax)
+    return np.int64(8) << eax
+
+
+@kernel()  # called once per pass or row: not worth inlining (compile time)
+def blocked_axes(packed):
+    """Axes a pass blocks, from the OR of ``pack_entry`` over every box tied at the minimum time.
+
+    Face contacts block their axes. An edge or corner contact blocks its axes only when no face
+    contact at the same instant already blocks one of them: blocking that axis alone stops the
+    motion that would enter the edge's box (the box then only touches it), which is what keeps a
+    box resting on a floor of many blocks from catching on the seams between them. Both sets are
+    ORs over all tied boxes, so the result never depends on visiting order.
+    """
+    faces = packed & 7
+    out = faces
+    for m in (3, 5, 6, 7):
+        if packed & (np.int64(8) << m) and not (m & faces):
+            out |= m
+    return out
+
+
+@kernel(inline="always")
+def narrow(p, r, h, v, bb, x, y, z, t, b, vs, best, mode):
+    """Test block box ``b`` (type ``t``, corners ``bb``) of voxel (x, y, z) (``v`` its float
+    corner) and fold the result into the :class:`Search` ``best``. In ``ENTERS`` mode ``axes`` becomes 1 once the path
+    enters a box."""
+    tmin, axes, hx, hy, hz, hb, htype, cand = best
+    cand += 1
+    te, tx, eax = box_interval(p, r, h, v, v, bb, vs)
+    if mode == ENTERS:
+        if te < tx and te >= 0 and te < 1:
+            axes = 1
+        return Search(tmin, axes, hx, hy, hz, hb, htype, cand)
+    if not (te < tx) or tx <= 0 or te >= 1:
+        return Search(tmin, axes, hx, hy, hz, hb, htype, cand)
+    if te < 0:
+        eax = inside_axis(p, r, h, v, bb, vs)
+        if eax == 0:
+            return Search(tmin, axes, hx, hy, hz, hb, htype, cand)
+        te = fl(vs, 0)
+    if axes == 0 or te < tmin:
+        return Search(te, pack_entry(eax), np.int64(x), np.int64(y), np.int64(z), np.int64(b), np.int64(t), cand)
+    if te == tmin:
+        axes |= pack_entry(eax)
+        if (x, y, z, b) < (hx, hy, hz, hb):
+            return Search(tmin, axes, np.int64(x), np.int64(y), np.int64(z), np.int64(b), np.int64(t), cand)
+    return Search(tmin, axes, hx, hy, hz, hb, htype, cand)
+
+
+@kernel(inline="always")
+def scan_chunk(p, r, h, world, ci, bx, by, bz, x0, x1, y0, y1, z0, z1, best, mode):
+    """Narrow phase against the solid boxes of the voxels [x0, x1] x [y0, y1] x [z0, z1], all in
+    chunk ``ci`` whose first voxel is (bx, by, bz). Arguments and result as :func:`scan_cells`."""
+    blocks, bstart, bboxes, vs = world.blocks, world.box_start, world.boxes, world.voxel_size
+    for x in range(x0, x1 + 1):
+        for y in range(y0, y1 + 1):
+            for z in range(z0, z1 + 1):
+                t = blocks[ci, x - bx, y - by, z - bz]
+                if t == 0:
+                    continue
+                v = (fl(vs, x), fl(vs, y), fl(vs, z))
+                for b in range(bstart[t], bstart[t + 1]):
+                    best = narrow(p, r, h, v, box_corners(bboxes, b), x, y, z, t, b, vs, best, mode)
+                if mode == ENTERS and best.axes != 0:
+                    return best
+    return best
+
+
+@hot
+def scan_cells(p, r, h, world, i0, i1, j0, j1, k0, k1, best, mode):
+    """Narrow phase against every solid box of the voxels [i0, i1] x [j0, j1] x [k0, k1].
+
+    Args:
+        p, r, h: float 3-tuples: centre, motion, half extents (world units).
+        best: search state to continue from; mode: FIRST_HIT or ENTERS (stops at the first entry).
+    Returns:
+        the updated search state.
+    """
+    keys, slot, S = world.keys, world.slot, world.chunk_size
+    for cx in range(i0 // S, i1 // S + 1):
+        for cy in range(j0 // S, j1 // S + 1):
+            for cz in range(k0 // S, k1 // S + 1):
+                ci = chunk_lookup(keys, slot, cx, cy, cz)
+                if ci < 0:
+                    continue
+                bx, by, bz = cx * S, cy * S, cz * S
+                best = scan_chunk(p, r, h, world, ci, bx, by, bz, max(i0, bx), min(i1, bx + S - 1),
+                                  max(j0, by), min(j1, by + S - 1), max(k0, bz), min(k1, bz + S - 1), best, mode)
+                if mode == ENTERS and best.axes != 0:
+                    return best
+    return best

@@ -1,0 +1,66 @@
+"""The world as numba kernels read it: :class:`KernelWorld`, built once per world and float type."""
+from __future__ import annotations
+
+import weakref
+from typing import NamedTuple
+
+import numpy as np
+
+from resweep.core.world.voxel_world import VoxelWorld
+
+
+class KernelWorld(NamedTuple):
+    """Arrays of a :class:`VoxelWorld` in the form the kernels take (numba passes named tuples).
+
+    Attributes:
+        keys: int64 (H, 3) chunk coordinates of the hash table; slot: int32 (H,) chunk index or -1.
+        blocks: uint16 (C, S, S, S) block types (shared with the world, edited in place).
+        chunk_size: int64 S.
+        lo, hi: int64 (3,) voxel bounds of all chunks (hi exclusive).
+        box_start: int64 (T+1,) and boxes: float (B, 6): block shapes (CSR, voxel-local units).
+        reach: int64, 1 when some shape reaches past its cell.
+        voxel_size: float, world units per voxel edge. Its float type (with ``boxes`` and
+            ``extent``) sets the float type every kernel computes in.
+        extent: float (6,) least box min and greatest box max per axis (voxel-local units); the
+            walk of long sweeps bounds every block shape by it.
+    """
+
+    keys: np.ndarray
+    slot: np.ndarray
+    blocks: np.ndarray
+    chunk_size: np.int64
+    lo: np.ndarray
+    hi: np.ndarray
+    box_start: np.ndarray
+    boxes: np.ndarray
+    reach: np.int64
+    voxel_size: float
+    extent: np.ndarray
+
+
+_WORLDS: "weakref.WeakKeyDictionary[VoxelWorld, dict]" = weakref.WeakKeyDictionary()
+
+
+def kernel_world(world: VoxelWorld, dtype) -> KernelWorld:
+    """``world`` as a :class:`KernelWorld` with floats in ``dtype``.
+
+    Cached per world and dtype: the arrays are shared with ``world`` (its blocks are edited in
+    place, so the tuple follows :meth:`VoxelWorld.advance_to` without being rebuilt).
+    """
+    dt = np.dtype(dtype)
+    shapes = world.shapes
+    sources = (world.keys, world.slot, world.blocks, shapes)
+    per = _WORLDS.setdefault(world, {})
+    got = per.get(dt)
+    if got is not None and all(x is y for x, y in zip(got[0], sources)):
+        return got[1]
+    ft = dt.type
+    boxes = np.ascontiguousarray(shapes.boxes, dtype=dt).reshape(-1, 6)
+    # Least box min and greatest box max per axis bound every block's shape (the walk relies on it).
+    ext = boxes[:, :3].min(axis=0).tolist() + boxes[:, 3:].max(axis=0).tolist() if len(boxes) else [0, 0, 0, 1, 1, 1]
+    kw = KernelWorld(world.keys, world.slot, world.blocks, np.int64(world.chunk_size),
+                     np.asarray(world.lo, np.int64).copy(), np.asarray(world.hi, np.int64).copy(),
+                     np.ascontiguousarray(shapes.box_start, np.int64), boxes, np.int64(shapes.reach),
+                     ft(world.voxel_size), np.asarray(ext, dt))
+    per[dt] = (sources, kw)
+    return kw

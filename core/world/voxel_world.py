@@ -1,0 +1,131 @@
+"""The voxel world as the solver sees it: chunks in a hash table, plus edits over time.
+
+Voxel (i, j, k) occupies ``[i, i+1) x [j, j+1) x [k, k+1)`` times ``voxel_size``. Voxels outside
+every chunk are air. Edits that land outside the recorded chunks get an all-air chunk made for
+them up front, so applying an edit never reallocates the world.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from resweep.core.world.chunk_hash import build_hash, lookup
+from resweep.core.world.shapes import BlockShapes
+
+class VoxelWorld:
+    """Chunks, block shapes and edits of one trace, positioned at some frame.
+
+    Attributes:
+        chunk_size: S, voxels per chunk edge.
+        chunk_origin: int64 (C, 3) voxel coordinate of each chunk's min corner.
+        blocks: uint16 (C, S, S, S) block types, index [chunk, x, y, z]; edited in place.
+        shapes: the block type table.
+        voxel_size: world units per voxel edge.
+        edits: int64 (E, 5) rows ``[frame, x, y, z, type]`` in file order.
+        frame: edits with ``edit frame <= self.frame`` have been applied.
+    """
+
+    def __init__(self, chunk_size: int, chunk_origin: np.ndarray, chunk_blocks: np.ndarray,
+                 shapes: BlockShapes, voxel_size: float = 1.0, edits: np.ndarray | None = None):
+        S = int(chunk_size)
+        origin = np.asarray(chunk_origin, dtype=np.int64).reshape(-1, 3)
+        blocks = np.asarray(chunk_blocks).astype(np.uint16, copy=True).reshape(-1, S, S, S)
+        edits = np.zeros((0, 5), np.int64) if edits is None else np.asarray(edits, np.int64).reshape(-1, 5)
+        if len(edits):
+            have = {tuple(o) for o in (origin // S).tolist()}
+            extra = sorted({tuple(c) for c in (edits[:, 1:4] // S).tolist()} - have)
+            if extra:
+                origin = np.concatenate([origin, np.asarray(extra, np.int64) * S])
+                blocks = np.concatenate([blocks, np.zeros((len(extra), S, S, S), np.uint16)])
+        self.chunk_size = S
+        self.chunk_origin = origin
+        self.shapes = shapes
+        self.voxel_size = float(voxel_size)
+        self.edits = edits
+        self._pristine = blocks
+        self.blocks = blocks.copy()
+        self.keys, self.slot = build_hash(origin // S)
+        self._edit_chunk, self._edit_local = self._locate_edits()
+        self._applied = 0  # edits[:_applied] are in self.blocks
+        self.frame = -(2**62)
+        if len(origin):
+            self.lo = origin.min(axis=0)
+            self.hi = origin.max(axis=0) + S
+        else:
+            self.lo = np.zeros(3, np.int64)
+            self.hi = np.zeros(3, np.int64)
+        # Edits are sorted by frame for incremental application; file order breaks ties.
+        self._edit_order = np.argsort(edits[:, 0], kind="stable") if len(edits) else np.zeros(0, np.int64)
+        self.version = 0  # bumps whenever self.blocks changes (viewers cache meshes by it)
+
+    def _locate_edits(self):
+        S = self.chunk_size
+        if not len(self.edits):
+            return np.zeros(0, np.int64), np.zeros((0, 3), np.int64)
+        coords = self.edits[:, 1:4]
+        cidx = np.array([self.chunk_index(*(c // S)) for c in coords], dtype=np.int64)
+        return cidx, coords - (coords // S) * S
+
+    def chunk_index(self, cx: int, cy: int, cz: int) -> int:
+        """Index of the chunk at chunk coordinate (cx, cy, cz), or -1."""
+        return lookup(self.keys, self.slot, cx, cy, cz)
+
+    def block_at(self, x: int, y: int, z: int) -> int:
+        """Block type at voxel (x, y, z) as the world stands now (0 outside every chunk)."""
+        S = self.chunk_size
+        c = self.chunk_index(x // S, y // S, z // S)
+        if c < 0:
+            return 0
+        return int(self.blocks[c, x - (x // S) * S, y - (y // S) * S, z - (z // S) * S])
+
+    def edit_frames(self) -> np.ndarray:
+        """Sorted distinct frames at which edits apply, int64."""
+        return np.unique(self.edits[:, 0]) if len(self.edits) else np.zeros(0, np.int64)
+
+    def advance_to(self, frame: int) -> bool:
+        """Apply every edit with ``edit frame <= frame`` (world as it stands when ``frame`` is solved).
+
+        Moving forward applies only the new edits; moving backward restarts from the recorded
+        chunks. Returns True when the blocks changed.
+        """
+        frame = int(frame)
+        if frame < self.frame and self._applied:
+            self.blocks[...] = self._pristine
+            self._applied = 0
+            self.version += 1
+        order = self._edit_order
+        n = self._applied
+        changed = False
+        while n < len(order) and self.edits[order[n], 0] <= frame:
+            e = order[n]
+            lx, ly, lz = self._edit_local[e]
+            self.blocks[self._edit_chunk[e], lx, ly, lz] = self.edits[e, 4]
+            n += 1
+            changed = True
+        self._applied = n
+        self.frame = frame
+        if changed:
+            self.version += 1
+        return changed
+
+
+def chunks_from_dense(grid: np.ndarray, origin=(0, 0, 0), chunk_size: int = 16):
+    """Cut a dense block grid into chunks, dropping all-air ones.
+
+    Args:
+        grid: integer (nx, ny, nz) block types, index [x, y, z].
+        origin: voxel coordinate of ``grid[0, 0, 0]``; each component a multiple of ``chunk_size``.
+    Returns:
+        chunk_origin int64 (C, 3) and chunk_blocks uint16 (C, S, S, S).
+    """
+    S = int(chunk_size)
+    origin = np.asarray(origin, np.int64)
+    if (origin % S).any():
+        raise ValueError("origin must be a multiple of chunk_size")
+    n = np.asarray(grid.shape)
+    c = -(-n // S)
+    padded = np.zeros(tuple(c * S), np.uint16)
+    padded[: n[0], : n[1], : n[2]] = grid
+    blk = padded.reshape(c[0], S, c[1], S, c[2], S).transpose(0, 2, 4, 1, 3, 5).reshape(-1, S, S, S)
+    idx = np.stack(np.meshgrid(*[np.arange(k) for k in c], indexing="ij"), -1).reshape(-1, 3)
+    keep = blk.reshape(len(blk), -1).any(axis=1)
+    return (idx[keep] * S + origin).astype(np.int64), blk[keep]

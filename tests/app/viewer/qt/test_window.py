@@ -1,0 +1,383 @@
+"""The viewer window driven as a user would: keys, clicks, panels, settings, pictures, bad files.
+
+Every number the window shows is compared with the core computed here, in the test, from the
+trace file (``core.solve_rows`` / ``core.check_trace``), never with values copied from the app.
+"""
+from __future__ import annotations
+
+import re
+import shlex
+
+import numpy as np
+import pytest
+from PyQt6.QtCore import QMimeData, QPoint, QPointF, Qt, QTimer, QUrl
+from PyQt6.QtGui import QDropEvent, QGuiApplication
+from PyQt6.QtWidgets import QApplication, QMessageBox
+
+from conftest import DEMO, LOAD_TIMEOUT, make_window, open_and_wait
+from resweep.app.cli.main import build_parser
+from resweep.core.check.kinds import KINDS
+from resweep.core.check.stream import check_trace
+from resweep.core.errors import TraceFormatError
+from resweep.core.check.rows import solve_rows
+from resweep.core.solve.settings import SolverSettings
+from resweep.core.format.reader import open_trace
+
+pytestmark = pytest.mark.gui
+LABELS = ("start", "motion", "recorded end", "reference end", "difference", "half extents")
+
+
+def core_row(path, frame, col, settings=SolverSettings()):
+    """The core's re-solve of one entity-frame, as RowResults of one row."""
+    with open_trace(path) as tr:
+        world = tr.world()
+        world.advance_to(frame)
+        b = tr.frames(frame, frame + 1)
+        return solve_rows(world, b.start[0, [col]], b.motion[0, [col]], b.end[0, [col]], b.half[0, [col]], settings)
+
+
+def core_flags(path, settings=SolverSettings()):
+    """int32 (F, N) flags of the whole trace from core.check_trace."""
+    with open_trace(path) as tr:
+        out = np.zeros((tr.frame_count, tr.entity_count), np.int32)
+
+        def keep(b):
+            out[b.frame, b.column] = b.rows.flags
+        check_trace(tr, settings, limit=0, on_block=keep)
+    return out
+
+
+def panel_numbers(text: str) -> dict[str, list[float]]:
+    """The rows of the Frame panel's plain text: label -> the numbers on that line."""
+    out = {}
+    for line in text.splitlines():
+        for label in LABELS:
+            if line.startswith(label + " "):
+                out[label] = [float(x) for x in line[len(label):].split()]
+    return out
+
+
+def press(qtbot, win, key, mod=Qt.KeyboardModifier.NoModifier):
+    """A key typed by the user: it goes to whichever widget has the keyboard focus."""
+    qtbot.keyClick(QApplication.focusWidget() or win, key, mod)
+
+
+def test_first_frame_is_on_screen_before_any_background_result(qtbot, window, long_trace):
+    seen = {}
+
+    def on_loaded(session, path):  # runs right after the window adopted the trace
+        seen["state"] = window.state is not None
+        seen["text"] = window.frame_panel.toPlainText()
+        seen["solved"] = int(window.flags.solved.sum())
+    window.worker.loaded.connect(on_loaded)
+    fractions = []
+    window.worker.progress.connect(lambda d, t: fractions.append(d / t))
+    open_and_wait(qtbot, window, long_trace)
+    assert seen["state"] and "reference end" in seen["text"]
+    assert seen["solved"] == 0  # nothing re-solved yet, the frame is already shown
+    # Marks filled in over several streamed blocks, and they match the core's own check.
+    assert len(fractions) >= 3 and fractions == sorted(fractions) and fractions[-1] == 1.0
+    want = core_flags(long_trace)
+    assert (window.flags.flags == want).all()
+
+
+def test_step_and_jump_to_next_divergence_with_keys(qtbot, demo_window):
+    win = demo_window
+    flags = core_flags(DEMO)
+    any_div = np.flatnonzero((flags != 0).any(axis=1))
+    press(qtbot, win, Qt.Key.Key_Home)
+    assert win.pb.frame == 0
+    press(qtbot, win, Qt.Key.Key_Right)
+    press(qtbot, win, Qt.Key.Key_Right)
+    assert win.pb.frame == 2
+    press(qtbot, win, Qt.Key.Key_Left)
+    assert win.pb.frame == 1
+    press(qtbot, win, Qt.Key.Key_N)
+    assert win.pb.frame == any_div[any_div > 1][0]
+    press(qtbot, win, Qt.Key.Key_End)
+    press(qtbot, win, Qt.Key.Key_Left, Qt.KeyboardModifier.ShiftModifier)
+    assert win.pb.frame == any_div[any_div < win.pb.frame_count - 1][-1]
+    # Filtered to one kind: the dasher's tunneling at frame 40 is the first tunneling of the trace.
+    tun = np.flatnonzero((flags & (1 << KINDS.index("tunneling"))).any(axis=1))
+    win.timeline.kind_box.setCurrentIndex(win.timeline.kind_box.findData("tunneling"))
+    press(qtbot, win, Qt.Key.Key_Home)
+    press(qtbot, win, Qt.Key.Key_N)
+    assert win.pb.frame == tun[0] == 40
+    press(qtbot, win, Qt.Key.Key_N)
+    assert win.pb.frame == tun[1]
+
+
+def test_frame_panel_shows_the_core_numbers(qtbot, window):
+    open_and_wait(qtbot, window, DEMO, frame=40, entity=102)
+    col = 1
+    assert window.pb.frame == 40 and window.pb.focus == col
+    row = core_row(DEMO, 40, col)
+    with open_trace(DEMO) as tr:
+        b = tr.frames(40, 41)
+        start, motion, rec = (np.asarray(a[0, col], np.float64) for a in (b.start, b.motion, b.end))
+    got = panel_numbers(window.frame_panel.toPlainText())
+    ref = row.ref_end[0]
+    expect = {"start": start, "motion": list(motion) + [np.linalg.norm(motion)], "recorded end": rec,
+              "reference end": ref, "difference": list(rec - ref) + [np.linalg.norm(rec - ref)]}
+    for label, want in expect.items():
+        assert np.allclose(got[label], want, atol=5e-7, rtol=0), label  # six decimals shown
+    text = window.frame_panel.toPlainText()
+    assert "tunneling" in text
+    # Per pass: time of impact, normal, hit voxel, block name and candidates tested.
+    lines = [ln for ln in text.splitlines() if re.match(r"^\d\s", ln)]
+    assert len(lines) == int(row.npass[0])
+    first = lines[0].split()
+    assert float(first[1]) == pytest.approx(float(row.toi[0, 0]), abs=5e-7)
+    assert [int(x) for x in first[2:5]] == row.normal[0, 0].tolist()
+    assert [int(x) for x in first[5:8]] == row.voxel[0, 0].tolist()
+    with open_trace(DEMO) as tr:
+        assert tr.shapes.name(int(row.block[0, 0])) in lines[0]
+    assert int(first[-1]) == int(row.candidates[0, 0])
+
+
+def _passes_sensitive_row():
+    """First (frame, col) of the demo whose reference end moves when passes go 3 -> 1 (core)."""
+    ends = {}
+    for p in (3, 1):
+        with open_trace(DEMO) as tr:
+            out = np.full((tr.frame_count, tr.entity_count, 3), np.nan)
+
+            def keep(b):
+                out[b.frame, b.column] = b.rows.ref_end
+            check_trace(tr, SolverSettings(passes=p), limit=0, on_block=keep)
+            ends[p] = out
+    moved = np.abs(ends[3] - ends[1]).max(axis=-1) > 1e-3
+    f, c = np.argwhere(np.nan_to_num(moved))[0]
+    return int(f), int(c)
+
+
+def test_changing_passes_changes_the_reference_end_and_resolves_the_trace(qtbot, demo_window):
+    win = demo_window
+    frame, col = _passes_sensitive_row()
+    win.pb.set_focus(col)
+    win.pb.set_frame(frame)
+    before = panel_numbers(win.frame_panel.toPlainText())["reference end"]
+    assert np.allclose(before, core_row(DEMO, frame, col).ref_end[0], atol=5e-7)
+    win.settings_panel.passes.setFocus()
+    win.settings_panel.passes.setValue(1)  # what the arrows / Enter in the spin box do
+    assert win.pb.settings.passes == 1
+    after = panel_numbers(win.frame_panel.toPlainText())["reference end"]  # the current frame: at once
+    want = core_row(DEMO, frame, col, SolverSettings(passes=1)).ref_end[0]
+    assert np.allclose(after, want, atol=5e-7) and not np.allclose(after, before, atol=1e-3)
+    # ... and the whole trace in the background.
+    qtbot.waitUntil(lambda: win.flags.complete and not win.worker.is_busy(), timeout=LOAD_TIMEOUT)
+    assert (win.flags.flags == core_flags(DEMO, SolverSettings(passes=1))).all()
+
+
+def test_skin_change_moves_the_reference_end_by_the_skin(qtbot, window):
+    open_and_wait(qtbot, window, DEMO, frame=40, entity=102)
+    before = panel_numbers(window.frame_panel.toPlainText())["reference end"]
+    window.settings_panel.skin.setValue(0.25)
+    after = panel_numbers(window.frame_panel.toPlainText())["reference end"]
+    want = core_row(DEMO, 40, 1, SolverSettings(skin=0.25)).ref_end[0]
+    assert np.allclose(after, want, atol=5e-7)
+    # Worked by hand: the dasher stops against the wall's -x face, so the skin shifts x only.
+    assert before[0] - after[0] == pytest.approx(0.25 - 0.001, abs=1e-6)
+
+
+def grab(win):
+    win.plotter.render()
+    return np.asarray(win.plotter.screenshot(return_img=True), np.int16)
+
+
+def test_viewport_picture_changes_between_frames_without_rebuilding_voxels(qtbot, window):
+    open_and_wait(qtbot, window, DEMO, frame=39, entity=102)
+    a = grab(window)
+    press(qtbot, window, Qt.Key.Key_Right)
+    assert window.pb.frame == 40
+    b = grab(window)
+    diff = np.abs(a - b).max(axis=-1)
+    assert (diff > 30).mean() > 0.01  # the dash's swept volume and hit face appear
+    for _ in range(5):  # frames 41..45: chunks met for the first time are meshed once
+        press(qtbot, window, Qt.Key.Key_Right)
+    builds = window.viewport.chunk_builds
+    for key in [Qt.Key.Key_Left] * 6 + [Qt.Key.Key_Right] * 6:  # 45 -> 39 -> 45, no world edit between
+        press(qtbot, window, key)
+    assert window.pb.frame == 45 and window.viewport.chunk_builds == builds
+    assert a.shape[2] == 3 and a.std() > 5  # a real picture, not a blank
+
+
+def test_saved_picture_has_the_caption_band(qtbot, demo_window, tmp_path):
+    win = demo_window
+    win.pb.set_frame(40)
+    view = grab(win)
+    out = tmp_path / "pic.png"
+    assert win.save_picture(str(out))
+    from PyQt6.QtGui import QImage
+    img = QImage(str(out))
+    assert img.width() == view.shape[1] and img.height() > view.shape[0] + 20
+    assert "frame 40" in " ".join(__import__("resweep.app.scene.caption", fromlist=["x"]).caption_lines(
+        win.session, win.state, win.pb.focus))
+
+
+def test_broken_file_shows_the_core_message_and_keeps_the_window(qtbot, demo_window, tmp_path, monkeypatch):
+    win = demo_window
+    bad = tmp_path / "garbage.h5"
+    bad.write_bytes(b"\x89HDF\r\n\x1a\nthis is not really a trace" * 50)
+    with pytest.raises(TraceFormatError) as info:
+        open_trace(bad)
+    shown = []
+    monkeypatch.setattr(QMessageBox, "warning", lambda parent, title, text, *a, **k: shown.append(text))
+    old = win.session
+    win.pb.set_frame(40)
+    win.open_path(bad)
+    qtbot.waitUntil(lambda: bool(shown), timeout=LOAD_TIMEOUT)
+    assert shown == [info.value.one_line()]
+    assert "\n" not in shown[0] and str(bad) in shown[0]
+    assert win.session is old and win.pb.frame == 40
+    press(qtbot, win, Qt.Key.Key_Right)
+    assert win.pb.frame == 41 and win.state.frame == 41
+
+
+def test_copy_report_holds_the_numbers_and_commands_that_reproduce_the_view(qtbot, window):
+    open_and_wait(qtbot, window, DEMO, frame=40, entity=102)
+    press(qtbot, window, Qt.Key.Key_C, Qt.KeyboardModifier.ControlModifier | Qt.KeyboardModifier.ShiftModifier)
+    md = QGuiApplication.clipboard().text()
+    row = core_row(DEMO, 40, 1)
+    assert "tunneling" in md and f"{row.ref_end[0, 0]:.6f}" in md
+    assert f"{float(row.error[0, KINDS.index('tunneling')]):.6f}" in md
+    cmds = [ln for ln in md.splitlines() if ln.startswith("resweep ")]
+    assert shlex.split(cmds[0])[1:] == ["view", str(DEMO), "--frame", "40", "--entity", "102"]
+    parser = build_parser()
+    for c in cmds:  # both commands parse with the real command line
+        args = parser.parse_args(shlex.split(c)[1:])
+        assert args.frame == 40 and args.entity == 102
+
+
+def test_play_pause_advances_at_the_chosen_rate(qtbot, demo_window):
+    win = demo_window
+    press(qtbot, win, Qt.Key.Key_Home)
+    press(qtbot, win, Qt.Key.Key_BracketRight)
+    press(qtbot, win, Qt.Key.Key_BracketRight)
+    assert win.pb.rate == 4.0
+    press(qtbot, win, Qt.Key.Key_Space)
+    assert win.pb.playing
+    qtbot.waitUntil(lambda: win.pb.frame >= 20, timeout=20_000)
+    press(qtbot, win, Qt.Key.Key_Space)
+    assert not win.pb.playing
+    f = win.pb.frame
+    qtbot.wait(100)
+    assert win.pb.frame == f
+
+
+def test_timeline_click_zoom_and_strip(qtbot, demo_window):
+    win = demo_window
+    strip = win.timeline.strip
+    x = int(strip.x_of(100) + 1)
+    qtbot.mouseClick(strip, Qt.MouseButton.LeftButton, pos=QPoint(x, strip.height() // 2))
+    assert win.pb.frame == 100
+    # The pixel column holding frame 40 shows an error (the dasher's tunneling).
+    px = int(strip.width() - 12)
+    vals = strip.strip_values(px)
+    assert vals[int(40 * px // 240)] == 3
+    # Right-drag over frames 30..60 zooms to them.
+    a, b = int(strip.x_of(30) + 1), int(strip.x_of(60) + 1)
+    y = strip.height() // 2
+    qtbot.mousePress(strip, Qt.MouseButton.RightButton, pos=QPoint(a, y))
+    from PyQt6.QtGui import QMouseEvent
+    move = QMouseEvent(QMouseEvent.Type.MouseMove, QPointF(b, y), QPointF(b, y), Qt.MouseButton.NoButton,
+                       Qt.MouseButton.RightButton, Qt.KeyboardModifier.NoModifier)
+    QApplication.sendEvent(strip, move)
+    qtbot.mouseRelease(strip, Qt.MouseButton.RightButton, pos=QPoint(b, y))
+    assert (strip.view0, strip.view1) == (30, 61)
+    strip.zoom(0.5, 45)
+    assert 15 <= strip.view1 - strip.view0 <= 16 and strip.view0 <= 45 < strip.view1
+    strip.reset_zoom()
+    assert (strip.view0, strip.view1) == (0, 240)
+
+
+def test_drop_a_trace_onto_the_window(qtbot, window):
+    mime = QMimeData()
+    mime.setUrls([QUrl.fromLocalFile(str(DEMO))])
+    ev = QDropEvent(QPointF(50, 50), Qt.DropAction.CopyAction, mime, Qt.MouseButton.LeftButton,
+                    Qt.KeyboardModifier.NoModifier)
+    with qtbot.waitSignal(window.worker.loaded, timeout=LOAD_TIMEOUT):
+        window.dropEvent(ev)
+    assert window.session.path == str(DEMO)
+
+
+def test_shortcuts_dialog_lists_every_shortcut(qtbot, demo_window):
+    win = demo_window
+    seen = {}
+
+    def inspect():
+        dlg = QApplication.activeModalWidget()
+        seen["rows"] = dlg.table.rowCount()
+        seen["keys"] = {dlg.table.item(r, 2).text() for r in range(dlg.table.rowCount())}
+        dlg.accept()
+    QTimer.singleShot(200, inspect)
+    press(qtbot, win, Qt.Key.Key_F1)
+    with_keys = [a for a in win.actions_list if a.shortcuts()]
+    assert seen["rows"] == len(with_keys) >= 20
+    joined = " ".join(seen["keys"])
+    for k in ("Space", "Home", "End", "Ctrl+S", "F1"):
+        assert k in joined
+
+
+def test_settings_layout_and_recent_files_are_remembered(qtbot, store):
+    win = make_window(qtbot, store)
+    open_and_wait(qtbot, win, DEMO)
+    win.settings_panel.passes.setValue(2)
+    win.close()
+    again = make_window(qtbot, store)
+    assert again.pb.settings.passes == 2
+    assert again.recent()[0] == str(DEMO.resolve())
+    assert again.recent_menu.actions()[0].text().endswith(str(DEMO.resolve()))
+
+
+def test_cancel_and_close_stop_the_background_solve(qtbot, window, long_trace):
+    with qtbot.waitSignal(window.worker.loaded, timeout=LOAD_TIMEOUT):
+        window.open_path(long_trace)
+    job = window.worker._solve
+    assert job is not None
+    with qtbot.waitSignal(window.worker.progress, timeout=LOAD_TIMEOUT):
+        pass
+    press(qtbot, window, Qt.Key.Key_Escape)
+    assert not window.worker.is_busy()
+    solved = int(window.flags.solved.sum())
+    qtbot.wait(300)
+    assert int(window.flags.solved.sum()) == solved < window.flags.frame_count  # late blocks dropped
+    job.thread.join(30)
+    assert not job.thread.is_alive()
+    # Closing while a solve runs joins its thread.
+    window.settings_panel.passes.setValue(2)
+    job = window.worker._solve
+    window.close()
+    assert not job.thread.is_alive()
+
+
+def test_selecting_an_entity_focuses_it_and_diverging_only_hides_the_clean_ones(qtbot, window):
+    open_and_wait(qtbot, window, DEMO, frame=60, entity=102)
+    flags = core_flags(DEMO)
+    before = grab(window)
+    table = window.entities.table
+    rect = table.visualItemRect(table.item(2, 1))  # climber
+    qtbot.mouseClick(table.viewport(), Qt.MouseButton.LeftButton, pos=rect.center())
+    assert window.pb.focus == 2
+    assert window.frame_panel.toPlainText().startswith("103 climber")
+    assert np.abs(grab(window) - before).max(axis=-1).mean() > 5  # the camera moved to the climber
+    window.entities.only_diverging.setChecked(True)
+    hidden = [r for r in range(table.rowCount()) if table.isRowHidden(r)]
+    assert hidden == [c for c in range(flags.shape[1]) if not flags[:, c].any()] == [3]  # the crate
+    # Counts per kind are the core's.
+    for c in range(flags.shape[1]):
+        for k, kind in enumerate(KINDS):
+            n = int(np.count_nonzero(flags[:, c] & (1 << k)))
+            assert table.item(c, 2 + k).text() == (str(n) if n else "·")
+
+
+def test_letter_keys_in_the_viewport_are_the_windows_not_vtks(qtbot, demo_window):
+    win = demo_window
+    win.plotter.setFocus()
+    qtbot.waitUntil(lambda: QApplication.focusWidget() is win.plotter, timeout=5000)
+    before = grab(win)
+    for key in (Qt.Key.Key_Q, Qt.Key.Key_S, Qt.Key.Key_R):  # VTK would quit / restyle / reset here
+        qtbot.keyClick(win.plotter, key)
+    assert win.isVisible() and np.array_equal(grab(win), before)
+    qtbot.keyClick(win.plotter, Qt.Key.Key_Right)  # window shortcuts still work from the viewport
+    assert win.pb.frame == 1
