@@ -10,7 +10,6 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from resweep.core.errors import TraceFormatError
 from resweep.core.format.datasets import FRAME_VECTORS, DatasetSpec, spec
 from resweep.core.format.h5safe import SafeFile
 from resweep.core.world.shapes import IMPLICIT_TYPES, BlockShapes, unit_cube_shapes
