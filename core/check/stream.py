@@ -112,7 +112,7 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
         bounds = [blk.f0, *cuts.tolist(), blk.f1]
         for a, b in zip(bounds[:-1], bounds[1:]):
             world.advance_to(a)
-            fr, col = np.nonzero(blk.active[a - blk.f0:b - blk.f0])
+            fr, col = (np.ascontiguousarray(x) for x in np.nonzero(blk.active[a - blk.f0:b - blk.f0]))  # one kernel layout
             fr = fr + (a - blk.f0)
             if not len(fr):
                 continue

@@ -2,15 +2,21 @@
 
 Cache folder. Compiled kernels go to a per-user cache folder (``$RESWEEP_CACHE_DIR`` when set,
 else the platform's user cache folder, ``~/.cache/resweep/kernels`` on Linux), never into the
-installed package: a package folder that gains files at run time outlives ``pip uninstall`` and
-can shadow a later install. Inside it each build of the kernels gets its own subfolder named by a
-digest of the kernel sources (and the constants they read), numba, numpy and the interpreter. numba invalidates a cached
-kernel only when that kernel's own file changes, but ours inline code from sibling ``nb_*``
-modules; a digest over all of them makes any edit start a fresh folder, so nothing stale loads.
-The folder is chosen while each kernel is decorated (numba fixes a kernel's cache location then)
-and numba's global setting is put back afterwards, so other numba code in the process keeps its
-own cache. :func:`compile_lock` serialises compilation between processes (Dask workers, parallel
-CI jobs) that share the folder.
+installed package at run time: a package folder that gains files at run time outlives ``pip
+uninstall`` and can shadow a later install. Inside it each build of the kernels gets its own
+subfolder named by a digest of the kernel sources (and the constants they read), numba, numpy and
+the interpreter. numba would invalidate a cached kernel only when that kernel's own file changes,
+but ours inline code from sibling modules; keyed by the digest, any edit starts a fresh folder.
+
+Relocatable entries. numba's own locators key an entry by the source file's path and time; ours
+(:class:`KernelLocator`, registered through numba's ``CACHE_LOCATOR_CLASSES`` setting while our
+kernels are decorated) keys it by the digest alone, so entries compiled anywhere from the same
+sources are valid everywhere on the same machine. That is what makes ahead-of-time kernels work:
+building the package (``pip install .``) compiles the kernels once into ``prebuilt/<digest>`` of
+the package (see setup.py), and the first run copies them into the user folder instead of
+compiling (:func:`seed_from_prebuilt`). Entries of another machine's CPU are simply not used.
+:func:`compile_lock` serialises compilation between processes (Dask workers, parallel CI jobs)
+that share the folder.
 
 No reference counting. Numba counts references to every array passed between compiled
 functions (an atomic update of the array's shared header per call). The per-row kernels are
@@ -29,6 +35,7 @@ from __future__ import annotations
 import contextlib
 import hashlib
 import os
+import shutil
 import sys
 import tempfile
 from pathlib import Path
@@ -38,6 +45,7 @@ os.environ.setdefault("OMP_WAIT_POLICY", "passive")
 import numba  # noqa: E402  (after the OpenMP setting)
 import numpy as np  # noqa: E402
 from numba import njit  # noqa: E402
+from numba.core import caching  # noqa: E402
 
 #: Environment variable naming the kernel cache folder (a shared or per-node folder on a cluster).
 CACHE_ENV = "RESWEEP_CACHE_DIR"
@@ -70,9 +78,14 @@ def cache_root() -> Path:
         return Path.home() / ".cache" / "resweep" / "kernels"
 
 
+KERNEL_DIGEST = kernel_digest()
+#: Kernels compiled when the package was built (absent in a source tree or an editable install).
+PREBUILT_DIR = Path(__file__).resolve().parent / "prebuilt" / KERNEL_DIGEST
+
+
 def _usable_cache_dir() -> Path:
     """This build's cache folder, created; a private temporary folder when the user's is not writable."""
-    folder = cache_root() / kernel_digest()
+    folder = cache_root() / KERNEL_DIGEST
     try:
         folder.mkdir(parents=True, exist_ok=True)
         probe = folder / f".probe-{os.getpid()}"
@@ -81,7 +94,7 @@ def _usable_cache_dir() -> Path:
         return folder
     except OSError:
         uid = os.getuid() if hasattr(os, "getuid") else "user"
-        folder = Path(tempfile.gettempdir()) / f"resweep-kernels-{uid}" / kernel_digest()
+        folder = Path(tempfile.gettempdir()) / f"resweep-kernels-{uid}" / KERNEL_DIGEST
         folder.mkdir(parents=True, exist_ok=True)
         return folder
 
@@ -107,16 +120,84 @@ def compile_lock():
             fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
 
 
+def seed_from_prebuilt() -> int:
+    """Copy the package's ahead-of-time kernels into :data:`CACHE_DIR` where it lacks them.
+
+    Each file is copied to a temporary name and renamed, under :func:`compile_lock`, so a reader
+    never sees half a file. Returns the number of files copied (0 without prebuilt kernels).
+    """
+    if not PREBUILT_DIR.is_dir():
+        return 0
+    copied = 0
+    with compile_lock():
+        for src in PREBUILT_DIR.iterdir():
+            dst = CACHE_DIR / src.name
+            if src.suffix not in (".nbi", ".nbc") or dst.exists():
+                continue
+            tmp = dst.with_name(f".{dst.name}.{os.getpid()}.tmp")
+            try:
+                shutil.copyfile(src, tmp)
+                os.replace(tmp, dst)
+                copied += 1
+            except OSError:
+                tmp.unlink(missing_ok=True)
+    return copied
+
+
+class KernelLocator(caching._CacheLocator):
+    """numba cache locator for resweep's kernels: entries live in :data:`CACHE_DIR` and are fresh
+    while the sources' digest is unchanged (no file paths or times, so entries are relocatable)."""
+
+    def __init__(self, py_func, py_file):
+        self._lineno = py_func.__code__.co_firstlineno
+
+    def get_cache_path(self):
+        return str(CACHE_DIR)
+
+    def get_source_stamp(self):
+        return KERNEL_DIGEST
+
+    def get_disambiguator(self):
+        return str(self._lineno)
+
+    @classmethod
+    def from_function(cls, py_func, py_file):
+        try:
+            ours = Path(py_file).resolve().is_relative_to(_CORE)
+        except (OSError, ValueError):
+            return None
+        if not ours:
+            return None
+        self = cls(py_func, py_file)
+        try:
+            self.ensure_cache_path()
+        except OSError:
+            return None
+        return self
+
+
+#: numba setting that lists cache locators by import path (absent in old numba releases, which
+#: then fall back to the path-keyed locator pointed at CACHE_DIR).
+_IMPL = getattr(caching, "CacheImpl", None) or getattr(caching, "_CacheImpl", None)
+_LOCATORS = (f"{__name__}.KernelLocator, " + ", ".join(c.__name__ for c in _IMPL._locator_classes)
+             if hasattr(numba.config, "CACHE_LOCATOR_CLASSES") and _IMPL is not None else None)
+
+
 def _cached(decorate):
-    """Apply ``decorate`` (an njit decorator with cache=True) with numba's cache folder pointed at
-    :data:`CACHE_DIR`, then restore numba's setting."""
+    """Apply ``decorate`` (an njit decorator with cache=True) with numba's cache settings pointed
+    at our locator and :data:`CACHE_DIR`, then restore numba's settings (other numba code in the
+    process keeps its own cache)."""
     def apply(fn):
-        saved = numba.config.CACHE_DIR
+        saved = numba.config.CACHE_DIR, getattr(numba.config, "CACHE_LOCATOR_CLASSES", None)
         numba.config.CACHE_DIR = str(CACHE_DIR)
+        if _LOCATORS:
+            numba.config.CACHE_LOCATOR_CLASSES = _LOCATORS
         try:
             return decorate(fn)
         finally:
-            numba.config.CACHE_DIR = saved
+            numba.config.CACHE_DIR = saved[0]
+            if _LOCATORS:
+                numba.config.CACHE_LOCATOR_CLASSES = saved[1]
     return apply
 
 
@@ -133,3 +214,5 @@ except ImportError:  # pragma: no cover - depends on the numba release
 
 #: Decorator for kernels that neither allocate nor keep arrays (allocation fails to compile).
 hot = kernel(**_NO_REFCOUNT)
+
+seed_from_prebuilt()

@@ -6,6 +6,8 @@ along the hit normal and carries the rest into the next pass (slide).
 """
 from __future__ import annotations
 
+import numpy as np
+
 
 from resweep.core.jit.nb_float import fl
 from resweep.core.jit.nb_jit import hot, kernel
@@ -23,6 +25,9 @@ AUTO_CELLS = 128
 def search(p, r, h, world, broad, mode, stack):
     """Search state (see nb_sweep) of the straight motion p -> p + r against the world."""
     best = start_best(world.voxel_size)
+    # A run-time int, not the caller's literal: one compiled walk and scan serve both modes
+    # (numba would otherwise compile each for every literal mode, doubling compile time).
+    mode = np.int64(mode)
     i0, i1, j0, j1, k0, k1 = sweep_range(p, r, h, world)
     if i0 > i1 or j0 > j1 or k0 > k1:
         return best
