@@ -223,7 +223,8 @@ def test_saved_picture_has_the_caption_band_that_says_what_is_shown(qtbot, windo
     from resweep.app.scene.caption import BAND_RGB, TEXT_RGB
     open_and_wait(qtbot, window, DEMO, frame=40, entity=102)
     view = grab(window)[..., :3].astype(np.uint8)
-    out = tmp_path / "pic.png"
+    (tmp_path / "pics").mkdir()
+    out = tmp_path / "pics" / "pic.png"
     assert window.save_picture(str(out))
     saved = np.asarray(Image.open(out).convert("RGB"))
     H, W = view.shape[:2]
@@ -248,7 +249,7 @@ def test_saved_picture_has_the_caption_band_that_says_what_is_shown(qtbot, windo
     window.pb.set_frame(41)
     assert window.save_picture(str(out))
     assert not np.array_equal(np.asarray(Image.open(out).convert("RGB"))[H:][:text_h, :text_w], want)
-    assert [p.name for p in tmp_path.iterdir()] == ["pic.png"]  # written whole, no temporary file left
+    assert [p.name for p in (tmp_path / "pics").iterdir()] == ["pic.png"]  # written whole, no temporary file left
 
 
 def test_broken_file_shows_the_core_message_and_keeps_the_window(qtbot, demo_window, tmp_path, monkeypatch):
