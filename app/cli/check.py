@@ -13,7 +13,7 @@ from resweep.core.solve.settings import SolverSettings
 from resweep.core.format.reader import open_trace
 
 from resweep.app.cli.exits import EXIT_DIVERGED, EXIT_OK, EXIT_USAGE
-from resweep.app.cli.output import emit_json
+from resweep.app.cli.output import Stdout, emit_json, output_problem
 
 SHOWN = 20  # divergences listed in the human summary
 
@@ -63,7 +63,10 @@ def _fmt_vec(v) -> str:
     return "(" + ", ".join("nan" if x is None else f"{x:.4f}" for x in v) + ")"
 
 
-def print_summary(report, settings, fail_on, out=sys.stdout, shown: int = SHOWN):
+def print_summary(report, settings, fail_on, out=sys.stdout, shown: int = SHOWN, json_path: str | None = None,
+                  limit: int | None = None):
+    """The human summary of one trace. ``json_path``: the file the JSON report goes to (it lists
+    ``report.divergences``, at most ``limit``), so the "more" line can say where the rest is."""
     w = out.write
     w(f"{report.path}: {report.frames} frames, {report.entities} entities, {report.entity_frames} entity-frames "
       f"re-solved ({settings.precision}, tolerance {settings.tolerance:g}, skin {settings.skin:g}, "
@@ -74,12 +77,13 @@ def print_summary(report, settings, fail_on, out=sys.stdout, shown: int = SHOWN)
     if report.divergences:
         w(f"  first divergences:\n  {'frame':>7} {'entity':>8}  {'kind':<14}{'error':>10}  recorded end -> reference end\n")
         for d in report.divergences[:shown]:
+            if d.reason is not None:  # an invalid row has no error or reference: say what is wrong
+                w(f"  {d.frame:>7} {d.entity:>8}  {d.kind:<14}{'-':>10}  {d.reason}\n")
+                continue
             err = "-" if d.error is None else f"{d.error:.4f}"
             w(f"  {d.frame:>7} {d.entity:>8}  {d.kind:<14}{err:>10}  {_fmt_vec(d.recorded_end)} -> "
               f"{_fmt_vec(d.reference_end)}\n")
-        total = sum(report.counts.values())
-        if total > shown:
-            w(f"  ... {total - min(shown, len(report.divergences))} more (use --json for the list)\n")
+        w(_more_line(report, shown, json_path, limit))
     failing = {k: report.counts[k] for k in fail_on if report.counts[k]}
     if failing:
         w("  result: FAIL (" + ", ".join(f"{k} {n}" for k, n in failing.items()) + ")\n")
@@ -87,18 +91,70 @@ def print_summary(report, settings, fail_on, out=sys.stdout, shown: int = SHOWN)
         w("  result: pass\n")
 
 
+def _more_line(report, shown: int, json_path: str | None, limit: int | None) -> str:
+    """"... N more" after the listed divergences, naming where they can be read ("" when none)."""
+    total = sum(report.counts.values())
+    listed = min(shown, len(report.divergences))
+    if total <= listed:
+        return ""
+    rest = total - listed
+    if json_path is None:
+        return f"  ... {rest} more (--json PATH lists them, up to --limit per trace)\n"
+    in_json = len(report.divergences) - listed
+    if in_json >= rest:
+        return f"  ... {rest} more, listed in {json_path}\n"
+    return (f"  ... {rest} more; {in_json} of them listed in {json_path}, the other {rest - in_json} cut by "
+            f"--limit {limit} (counts stay exact)\n")
+
+
+def set_threads(requested: int | None, stderr=sys.stderr) -> int | None:
+    """Apply ``--threads``: None keeps numba's default (all cores); more than the cores is clamped
+    with a notice on ``stderr``. Returns the count in use, or None after a usage error (< 1)."""
+    import numba
+    cores = numba.config.NUMBA_NUM_THREADS
+    if requested is None:
+        return cores
+    if requested < 1:
+        stderr.write(f"resweep check: error: --threads must be >= 1, got {requested}\n")
+        return None
+    if requested > cores:
+        stderr.write(f"resweep check: --threads {requested} is more than the {cores} cores here; using {cores}\n")
+        requested = cores
+    numba.set_num_threads(requested)
+    return requested
+
+
+def open_all(paths) -> list[str]:
+    """Open and validate every trace before any is checked (header, world, dataset shapes; no
+    frames are solved): one line per bad file, [] when all are readable."""
+    bad = []
+    for path in paths:
+        try:
+            open_trace(path).close()
+        except TraceFormatError as exc:
+            bad.append(exc.one_line())
+    return bad
+
+
 def run(args) -> int:
     settings = SolverSettings(tolerance=args.tolerance, skin=args.skin, passes=args.passes,
                               precision=args.precision)
     fail_on = DEFAULT_FAIL_ON if args.fail_on is None else args.fail_on
-    if args.threads is not None:
-        import numba
-        if not 1 <= args.threads <= numba.config.NUMBA_NUM_THREADS:
-            sys.stderr.write(f"resweep check: error: --threads must be in 1..{numba.config.NUMBA_NUM_THREADS}\n")
-            return EXIT_USAGE
-        numba.set_num_threads(args.threads)
-    show_progress = not args.quiet and sys.stderr.isatty()
     json_to_stdout = args.json == "-"
+    if args.json and not json_to_stdout:
+        problem = output_problem(args.json, "the JSON report", args.traces)
+        if problem:
+            sys.stderr.write(f"resweep check: {problem}\n")
+            return EXIT_USAGE
+    if set_threads(args.threads) is None:
+        return EXIT_USAGE
+    bad = open_all(args.traces)
+    if bad:
+        for line in bad:
+            sys.stderr.write(f"resweep check: {line}\n")
+        return EXIT_USAGE
+    out = Stdout()
+    show_progress = not args.quiet and sys.stderr.isatty()
     warmed = set()
     reports, status = [], EXIT_OK
     for path in args.traces:
@@ -111,19 +167,19 @@ def run(args) -> int:
                     def progress(done, total, bar=bar):
                         bar.update(done - bar.n)
                     report = check_trace(trace, settings, limit=args.limit, progress=progress)
-        except TraceFormatError as exc:
+        except TraceFormatError as exc:  # a frame block that fails to read part-way through
             sys.stderr.write(f"resweep check: {exc.one_line()}\n")
             status = EXIT_USAGE
             continue
         reports.append(report)
         if not args.quiet and not json_to_stdout:
-            print_summary(report, settings, fail_on)
+            print_summary(report, settings, fail_on, out=out, json_path=args.json, limit=args.limit)
         if report.failing(fail_on) and status == EXIT_OK:
             status = EXIT_DIVERGED
     if args.json:
         doc = {"version": 1, "settings": {**settings.as_dict(), "fail_on": list(fail_on), "limit": args.limit},
                "traces": [r.as_json() for r in reports]}
-        if not emit_json(doc, args.json, "check"):
+        if not emit_json(doc, args.json, "check", out):
             return EXIT_USAGE
     return status
 

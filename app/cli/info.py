@@ -7,17 +7,22 @@ from resweep.core.analysis.describe import describe
 from resweep.core.format.reader import open_trace
 
 from resweep.app.cli.exits import EXIT_OK, EXIT_USAGE
-from resweep.app.cli.output import emit_json
+from resweep.app.cli.output import Stdout, emit_json, output_problem
 
 
 def run(args) -> int:
+    if args.json and args.json != "-":
+        problem = output_problem(args.json, "the JSON description", [args.trace])
+        if problem:
+            sys.stderr.write(f"resweep info: {problem}\n")
+            return EXIT_USAGE
     with open_trace(args.trace) as trace:
         info = describe(trace)
     if args.json:
         if not emit_json(info, args.json, "info"):
             return EXIT_USAGE
         return EXIT_OK
-    w = sys.stdout.write
+    w = Stdout().write
     w(f"{info['path']}: resweep trace v{info['version']}" + (f" - {info['title']}" if info["title"] else "") + "\n")
     if info["producer"]:
         w(f"  producer      {info['producer']}\n")

@@ -11,6 +11,7 @@ import os
 import sys
 
 from resweep.app.cli.exits import EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_USAGE
+from resweep.app.cli.output import silence_stdout
 
 
 class _Parser(argparse.ArgumentParser):
@@ -21,15 +22,38 @@ class _Parser(argparse.ArgumentParser):
         raise SystemExit(EXIT_USAGE)
 
 
-def _kinds_arg(text: str):
-    from resweep.core.check.kinds import KINDS
-    if text.strip().lower() in ("", "none"):
+def _fail_on_arg(text: str):
+    """Kinds and severities, comma-separated: a severity stands for every kind of that severity or
+    worse (``warning`` = warning and error kinds); ``none`` alone never fails. -> tuple of kinds."""
+    from resweep.core.check.kinds import KINDS, SEVERITIES, SEVERITY, SEVERITY_RANK
+    items = [k.strip().lower() for k in text.split(",")]
+    if not text.strip() or not all(items):
+        raise argparse.ArgumentTypeError(f"empty kind in {text!r}; give kinds or severities "
+                                         f"({', '.join(KINDS)}; {', '.join(SEVERITIES)}) or none")
+    if items == ["none"]:
         return ()
-    kinds = tuple(k.strip() for k in text.split(",") if k.strip())
-    bad = [k for k in kinds if k not in KINDS]
-    if bad:
-        raise argparse.ArgumentTypeError(f"unknown kind {bad[0]!r}; kinds are {', '.join(KINDS)} (or none)")
-    return kinds
+    chosen = set()
+    for item in items:
+        if item in SEVERITY_RANK:
+            chosen |= {k for k in KINDS if SEVERITY_RANK[SEVERITY[k]] >= SEVERITY_RANK[item]}
+        elif item in KINDS:
+            chosen.add(item)
+        else:
+            extra = " ('none' only alone)" if item == "none" else ""
+            raise argparse.ArgumentTypeError(f"unknown kind or severity {item!r}{extra}; kinds are "
+                                             f"{', '.join(KINDS)}; severities {', '.join(SEVERITIES)}; or none")
+    return tuple(k for k in KINDS if k in chosen)
+
+
+def _frame_range(text: str):
+    """``A:B`` -> (A, B), frames A to B with both ends included."""
+    try:
+        a, b = (int(v) for v in text.split(":"))
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"frames must look like 40:60 (both ends included), got {text!r}") from None
+    if not 0 <= a <= b:
+        raise argparse.ArgumentTypeError(f"frames {text!r}: need 0 <= A <= B")
+    return a, b
 
 
 def _positive_int(text: str) -> int:
@@ -53,30 +77,44 @@ def _size_arg(text: str):
 
 
 def build_parser() -> argparse.ArgumentParser:
+    from resweep.core.solve.settings import PRECISIONS, SolverSettings
     p = _Parser(prog="resweep", description="Re-solve recorded voxel collision traces with a reference "
                 "swept-AABB solver and report where the recorded run diverged.")
     sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser, metavar="COMMAND")
 
-    def solver_opts(sp):
-        sp.add_argument("--tolerance", type=float, default=0.01, metavar="T",
-                        help="voxels; ends closer than this agree (default 0.01)")
-        sp.add_argument("--skin", type=float, default=0.001, metavar="E",
-                        help="voxels kept between a box and a hit face (default 0.001)")
-        sp.add_argument("--passes", type=int, default=3, metavar="N", help="slide passes per frame (default 3)")
-        sp.add_argument("--precision", choices=("float64", "float32"), default="float64",
-                        help="solve precision (default float64)")
+    def solver_opts(sp, remembered=False):
+        """The solver options; with ``remembered`` (the viewer) an option not given is None and the
+        viewer's remembered setting applies."""
+        d = SolverSettings()
+
+        def dflt(name):
+            return None if remembered else getattr(d, name)
+
+        def said(name):
+            return "the viewer's last setting" if remembered else f"{getattr(d, name)}"
+        sp.add_argument("--tolerance", type=float, default=dflt("tolerance"), metavar="T",
+                        help=f"voxels; ends closer than this agree (default {said('tolerance')})")
+        sp.add_argument("--skin", type=float, default=dflt("skin"), metavar="E",
+                        help=f"voxels kept between a box and a hit face (default {said('skin')})")
+        sp.add_argument("--passes", type=int, default=dflt("passes"), metavar="N",
+                        help=f"slide passes per frame (default {said('passes')})")
+        sp.add_argument("--precision", choices=PRECISIONS, default=dflt("precision"),
+                        help=f"solve precision (default {said('precision')})")
 
     c = sub.add_parser("check", help="re-solve traces and report divergences",
                        description="Re-solve every recorded entity-frame and report divergences. Exit status: "
-                                   "0 no failing divergence, 1 failing divergence found, 2 usage error or bad trace.")
+                                   "0 no failing divergence, 1 failing divergence found, 2 usage error or bad "
+                                   "trace, 3 internal error, 130 interrupted.")
     c.add_argument("traces", nargs="+", metavar="TRACE")
     solver_opts(c)
-    c.add_argument("--fail-on", type=_kinds_arg, default=None, metavar="KIND,...",
-                   help="kinds that make the exit status 1 (default: every error-severity kind; 'none' never)")
+    c.add_argument("--fail-on", type=_fail_on_arg, default=None, metavar="KIND|SEVERITY,...",
+                   help="kinds, or severities (= every kind of that severity or worse), that make the exit "
+                        "status 1 (default: error; 'none' never fails)")
     c.add_argument("--json", metavar="PATH|-", help="write the JSON report to PATH, or to stdout with '-'")
     c.add_argument("--limit", type=_positive_int, default=1000, metavar="N",
                    help="divergences listed per trace (counts stay exact; default 1000)")
-    c.add_argument("--threads", type=int, default=None, metavar="N", help="solver threads (default: all cores)")
+    c.add_argument("--threads", type=int, default=None, metavar="N",
+                   help="solver threads (default: all cores; more than the cores is clamped with a notice)")
     c.add_argument("--quiet", action="store_true", help="no progress bar and no summary")
 
     i = sub.add_parser("info", help="describe a trace and list validation problems")
@@ -87,13 +125,18 @@ def build_parser() -> argparse.ArgumentParser:
     v.add_argument("trace", nargs="?", metavar="TRACE", help="trace to open (default: the bundled demo)")
     v.add_argument("--frame", type=_positive_int, default=0, metavar="N")
     v.add_argument("--entity", type=int, default=None, metavar="ID")
+    solver_opts(v, remembered=True)
 
-    s = sub.add_parser("snapshot", help="render the viewer picture off screen to a PNG")
+    s = sub.add_parser("snapshot", help="render the viewer picture off screen to a PNG or JPEG")
     s.add_argument("trace", metavar="TRACE")
-    s.add_argument("--frame", type=_positive_int, required=True, metavar="N")
+    which = s.add_mutually_exclusive_group(required=True)
+    which.add_argument("--frame", type=_positive_int, metavar="N")
+    which.add_argument("--frames", type=_frame_range, metavar="A:B",
+                       help="frames A to B (both included), one picture each into the folder -o DIR")
     s.add_argument("--entity", type=int, default=None, metavar="ID")
     s.add_argument("--size", type=_size_arg, default=(1280, 720), metavar="WxH")
-    s.add_argument("-o", "--output", required=True, metavar="PNG")
+    s.add_argument("-o", "--output", required=True, metavar="FILE|DIR",
+                   help="picture file (.png, .jpg or .jpeg); with --frames an existing folder")
     solver_opts(s)
     return p
 
@@ -113,6 +156,9 @@ def main(argv=None) -> int:
         sys.stderr.write("resweep: interrupted\n")
         return EXIT_INTERRUPTED
     except BrokenPipeError:
+        # Commands write through output.Stdout, which keeps their status on a closed pipe; this is
+        # the fallback for output written otherwise. The reader left, so nothing was lost on our side.
+        silence_stdout()
         return EXIT_OK
     except Exception as exc:  # the boundary: one line, never a traceback (unless debugging)
         if os.environ.get("RESWEEP_DEBUG"):

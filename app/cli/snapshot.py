@@ -1,44 +1,70 @@
-"""``resweep snapshot``: render the viewer's picture of one entity-frame off screen (no Qt)."""
+"""``resweep snapshot``: render the viewer's picture of entity-frames off screen (no Qt)."""
 from __future__ import annotations
 
+import os
 import sys
+from pathlib import Path
 
 from resweep.app.cli.exits import EXIT_OK, EXIT_USAGE
+from resweep.app.cli.output import output_problem
+
+#: Suffixes of the pictures snapshot writes (the scene's PICTURE_TYPES; restated here so that a
+#: refused name fails before pyvista loads, and a test holds the two equal).
+SUFFIXES = (".png", ".jpg", ".jpeg")
 
 
 def run(args) -> int:
-    """``resweep snapshot TRACE --frame N [--entity ID] [--size WxH] -o PNG``: render off screen.
+    """``resweep snapshot TRACE (--frame N | --frames A:B) [--entity ID] [--size WxH] -o FILE|DIR``.
 
-    Default entity: the first with a divergence at that frame, else the first active one. Bad
-    frame, entity or output path: one line on stderr, status 2 (typed errors leave through cli).
+    One frame goes to the file ``-o`` names (PNG or JPEG by its suffix); ``--frames A:B`` renders
+    frames A..B (both included) with one plotter into the existing folder ``-o`` as
+    ``<trace stem>-f<frame>-e<id>.png``. Default entity: the first with a divergence at the (first)
+    frame, else the first active one; a sequence keeps that entity. Bad frame, entity or output
+    path: one line on stderr, status 2, before anything is rendered. Pictures are written atomically.
     """
-    import os
-    from pathlib import Path
-
+    from resweep.core.analysis.frames import TraceSession
     from resweep.core.solve.settings import SolverSettings
 
-    from resweep.core.analysis.frames import TraceSession
-
-    out = Path(args.output)
-    folder = out.parent if str(out.parent) else Path(".")
-    if out.is_dir() or not folder.is_dir() or not os.access(folder, os.W_OK) or (
-            out.exists() and not os.access(out, os.W_OK)):
-        why = ("is a directory" if out.is_dir() else "folder does not exist" if not folder.is_dir()
-               else "is not writable")
-        sys.stderr.write(f"resweep snapshot: {args.output}: cannot write the picture ({why})\n")
+    problem = _output_problem(args)
+    if problem:
+        sys.stderr.write(f"resweep snapshot: {problem}\n")
         return EXIT_USAGE
     settings = SolverSettings(tolerance=args.tolerance, skin=args.skin, passes=args.passes,
                               precision=args.precision)
+    first, last = args.frames if args.frames is not None else (args.frame, args.frame)
     with TraceSession(args.trace, settings) as session:
-        if out.exists() and out.resolve() == Path(session.trace.path).resolve():
-            sys.stderr.write(f"resweep snapshot: {args.output}: is the input trace; pick another output\n")
-            return EXIT_USAGE
-        from resweep.app.scene.picture import pick_column, render_picture, save_png
-        pick_column(session, args.frame, args.entity)  # bad frame or id fails before the render
-        img = render_picture(session, args.frame, args.entity, tuple(args.size))
-    try:
-        save_png(img, out)
-    except OSError as exc:
-        sys.stderr.write(f"resweep snapshot: {args.output}: cannot write the picture: {exc.strerror or exc}\n")
-        return EXIT_USAGE
+        from resweep.app.scene.picture import PictureMaker, pick_column, save_picture
+        session.check_frame(last)  # bad frames or id fail before the first render
+        col = pick_column(session, first, args.entity)
+        eid = int(session.trace.ids[col])
+        if args.frames is None:
+            targets = [(first, Path(args.output))]
+        else:
+            stem = Path(session.path).stem
+            targets = [(f, Path(args.output) / f"{stem}-f{f}-e{eid}.png") for f in range(first, last + 1)]
+        with PictureMaker(session, tuple(args.size)) as maker:
+            for frame, out in targets:
+                img = maker.render(frame, eid if args.frames is not None else args.entity)
+                try:
+                    save_picture(img, out)
+                except OSError as exc:
+                    sys.stderr.write(f"resweep snapshot: {out}: cannot write the picture: "
+                                     f"{exc.strerror or exc}\n")
+                    return EXIT_USAGE
     return EXIT_OK
+
+
+def _output_problem(args) -> str | None:
+    """Why ``-o`` cannot take the pictures asked for, or None (checked before the trace is read)."""
+    out = Path(args.output)
+    if args.frames is not None:
+        if not out.is_dir():
+            why = "is a file" if out.exists() else "no such folder"
+            return f"{args.output}: --frames writes one picture per frame into a folder ({why})"
+        if not os.access(out, os.W_OK):
+            return f"{args.output}: cannot write the pictures (folder is not writable)"
+        return None
+    if not out.is_dir() and out.suffix.lower() not in SUFFIXES:
+        shown = f"'{out.suffix}'" if out.suffix else "no suffix"
+        return (f"{args.output}: unknown picture type ({shown}); name the file .png, .jpg or .jpeg")
+    return output_problem(out, "the picture", [args.trace])

@@ -1,7 +1,11 @@
 """The caption of a picture: what is shown (text lines) and the band they are drawn in (Pillow).
 
-Band layout: text lines at the left, one every ``line_h`` pixels from ``pad``; the legend
-(colour swatch + label per entry) flows in rows to the right of the widest text line.
+Band layout, for a picture ``height`` pixels tall (band included): font size
+``fs = clip(round(0.03 * height), 10, 30)`` pixels (Pillow's default font), margin
+``pad = max(3, fs // 2)``, line pitch ``line_h = round(1.3 * fs)``; text line i is drawn in
+TEXT_RGB on BAND_RGB with its top-left at (pad, pad + i * line_h). The legend (colour swatch +
+label per entry) flows in rows to the right of the widest text line, at least 3 * fs beyond it,
+or below the text when that makes the band lower.
 """
 from __future__ import annotations
 
@@ -11,6 +15,7 @@ import numpy as np
 from PIL import Image, ImageDraw, ImageFont
 
 from resweep.core.check.kinds import SEVERITY
+from resweep.core.check.validity import reason
 
 BAND_RGB = (30, 34, 42)
 TEXT_RGB = (236, 238, 242)
@@ -43,7 +48,12 @@ def caption_lines(session, state, col: int) -> list[str]:
     else:
         parts = []
         for k, err in state.errors(col).items():
-            parts.append(f"{k} [{SEVERITY[k]}]" + ("" if err is None else f" {err:.4f}"))
+            if k == "invalid":  # no error value: say what is invalid instead
+                detail = " " + reason(state.start[col], state.motion[col], state.recorded_end[col],
+                                      state.half[col], session.settings.dtype)
+            else:
+                detail = "" if err is None else f" {err:.4f}"
+            parts.append(f"{k} [{SEVERITY[k]}]{detail}")
         lines.append(", ".join(parts))
     hit = np.flatnonzero(state.rows.block[col] >= 0)
     if len(hit) and not lines[-1].startswith("no "):

@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import os
 import sys
+from pathlib import Path
 
 if sys.platform.startswith("linux") and not os.environ.get("DISPLAY"):
     # Go straight to the EGL window: trying X first without a display logs a warning on stderr.
@@ -14,6 +15,8 @@ if sys.platform.startswith("linux") and not os.environ.get("DISPLAY"):
 import numpy as np  # noqa: E402
 import pyvista as pv  # noqa: E402
 from PIL import Image  # noqa: E402
+
+from resweep.core.format.atomic import write_atomic  # noqa: E402
 
 from resweep.app.scene.caption import BandLayout, band_layout, caption_lines, render_band  # noqa: E402
 from resweep.app.scene.viewport import Viewport, ViewOptions  # noqa: E402
@@ -30,31 +33,46 @@ def pick_column(session, frame: int, entity_id=None) -> int:
     return session.column_of(entity_id)
 
 
-def render_picture(session, frame, entity_id=None, size=(1280, 720), options=ViewOptions(),
-                   camera: str = "follow") -> np.ndarray:
-    """uint8 (H, W, 3) picture of ``frame`` focused on ``entity_id`` (see :func:`pick_column`),
-    caption band at the bottom; (W, H) = ``size`` exactly."""
-    W, H = (int(v) for v in size)
-    col = pick_column(session, frame, entity_id)
-    state = session.frame_state(frame)
-    lines = caption_lines(session, state, col)
-    # The legend depends on what gets drawn, so lay out with the widest legend first and redo
-    # the band (not the render) when the real one differs in rows.
-    plotter = pv.Plotter(off_screen=True, window_size=(W, max(MIN_VIEW_H, H // 2)))
-    try:
-        vp = Viewport(plotter)
-        vp.set_session(session)
-        vp.show(state, col, options)
+class PictureMaker:
+    """Pictures of one session's frames from one off-screen plotter, reused picture after picture
+    (a sequence of frames costs one VTK window and one voxel meshing, not one per frame).
+
+    Use as a context manager, or call :meth:`close`.
+    """
+
+    def __init__(self, session, size=(1280, 720), options=ViewOptions(), camera: str = "follow"):
+        self.session, self.options, self.camera = session, options, camera
+        self.W, self.H = (int(v) for v in size)
+        self.plotter = pv.Plotter(off_screen=True, window_size=(self.W, max(MIN_VIEW_H, self.H // 2)))
+        self.viewport = Viewport(self.plotter)
+        self.viewport.set_session(session)
+
+    def render(self, frame, entity_id=None) -> np.ndarray:
+        """uint8 (H, W, 3) picture of ``frame`` focused on ``entity_id`` (see :func:`pick_column`),
+        caption band at the bottom; (W, H) = ``size`` exactly."""
+        W, H = self.W, self.H
+        session, vp, plotter = self.session, self.viewport, self.plotter
+        col = pick_column(session, frame, entity_id)
+        state = session.frame_state(frame)
+        lines = caption_lines(session, state, col)
+        # The legend depends on what gets drawn, so the band is laid out once the view is set up.
+        vp.show(state, col, self.options)
         layout = band_layout(W, H, lines, vp.legend)
         view_h = max(MIN_VIEW_H, H - layout.height)
         plotter.window_size = (W, view_h)
-        vp.set_camera(camera)
+        vp.set_camera(self.camera)
         plotter.render()
         view = np.asarray(plotter.screenshot(return_img=True))[..., :3]
-        legend = vp.legend
-    finally:
-        plotter.close()
-    return compose(view, lines, legend, layout, (W, H))
+        return compose(view, lines, vp.legend, layout, (W, H))
+
+    def close(self) -> None:
+        self.plotter.close()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
 
 
 def compose(view: np.ndarray, lines: list[str], legend, layout: BandLayout | None = None,
@@ -78,6 +96,29 @@ def compose(view: np.ndarray, lines: list[str], legend, layout: BandLayout | Non
     return out
 
 
-def save_png(img: np.ndarray, path) -> None:
-    """Write uint8 (H, W, 3) ``img`` as PNG; OSError when the path cannot be written."""
-    Image.fromarray(np.ascontiguousarray(img, np.uint8), "RGB").save(path, format="PNG")
+def render_picture(session, frame, entity_id=None, size=(1280, 720), options=ViewOptions(),
+                   camera: str = "follow") -> np.ndarray:
+    """One picture (see :meth:`PictureMaker.render`) from a plotter made for it."""
+    with PictureMaker(session, size, options, camera) as maker:
+        return maker.render(frame, entity_id)
+
+
+#: Picture file types by file name suffix -> Pillow format name.
+PICTURE_TYPES = {".png": "PNG", ".jpg": "JPEG", ".jpeg": "JPEG"}
+
+
+def picture_type(path) -> str | None:
+    """Pillow format for ``path``'s suffix (case-insensitive), or None when it is not one we write."""
+    return PICTURE_TYPES.get(Path(path).suffix.lower())
+
+
+def save_picture(img: np.ndarray, path) -> None:
+    """Write uint8 (H, W, 3) ``img`` to ``path`` as its suffix says (PNG, or JPEG at quality 92),
+    atomically; ValueError for another suffix, OSError when the path cannot be written."""
+    fmt = picture_type(path)
+    if fmt is None:
+        raise ValueError(f"{path}: unknown picture type (use {', '.join(PICTURE_TYPES)})")
+    im = Image.fromarray(np.ascontiguousarray(img, np.uint8), "RGB")
+    opts = {"quality": 92} if fmt == "JPEG" else {}
+    write_atomic(path, lambda fh: im.save(fh, format=fmt, **opts))
+

@@ -18,7 +18,7 @@ from resweep.core.errors import SettingsError
 from resweep.core.solve.settings import PRECISIONS, SolverSettings
 
 from resweep.app.viewer.playback import Playback
-from resweep.app.viewer.report_md import FrameFacts, num
+from resweep.app.viewer.report_md import FrameFacts, cells, num
 from resweep.app.viewer.flags import TraceFlags
 from resweep.app.viewer.timeline import SEVERITY_COLOURS
 
@@ -201,10 +201,13 @@ def facts_lines(f: FrameFacts) -> list[str]:
     unit = "world units" + ("" if f.voxel_size == 1.0 else f", 1 voxel = {f.voxel_size:g}")
     out = [f"{'(' + unit + ')':<{LABEL_W}}" + "".join(f"{h:>{CELL_W}}" for h in ("x", "y", "z", "|v|"))]
     for label, v, length in f.vectors:
-        cells = "".join(f"{num(x):>{CELL_W}}" for x in v)
-        out.append(f"{label:<{LABEL_W}}{cells}" + (f"{num(length):>{CELL_W}}" if length is not None else ""))
+        row = "".join(f"{c:>{CELL_W}}" for c in cells(label, v))
+        out.append(f"{label:<{LABEL_W}}{row}" + (f"{num(length):>{CELL_W}}" if length is not None else ""))
     for k in f.kinds:
-        out.append(f"{'error':<{LABEL_W}}{num(f.errors[k]):>{CELL_W}}  {k}")
+        if k == "invalid":
+            out.append(f"{'invalid':<{LABEL_W}}{f.invalid}")
+        else:
+            out.append(f"{'error':<{LABEL_W}}{num(f.errors[k]):>{CELL_W}}  {k}")
     if f.passes:
         out += ["", "pass toi        normal    hit voxel   block        tested",
                 "     (toi: time of impact, fraction of the pass's motion)"]
@@ -224,7 +227,8 @@ def facts_html(f: FrameFacts | None, note: str = "") -> str:
     if not f.active:
         return head + "<p>inactive at this frame (no row recorded)</p>"
     chips = " ".join(_chip(k) for k in f.kinds) if f.kinds else "<span style='color:#2f9d7f'>agrees</span>"
-    out = [head, f"<p>{chips} &nbsp; <span style='color:#7d8b96'>reference: {f.state}</span></p>",
+    why = f" &nbsp; <b>{html.escape(f.invalid)}</b>" if f.invalid else ""
+    out = [head, f"<p>{chips}{why} &nbsp; <span style='color:#7d8b96'>reference: {f.state}</span></p>",
            "<pre style='font-size:9pt'>" + html.escape("\n".join(facts_lines(f))) + "</pre>"]
     if note:
         out.append(f"<p style='color:#7d8b96'>{html.escape(note)}</p>")

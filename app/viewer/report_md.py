@@ -13,21 +13,33 @@ from pathlib import Path
 import numpy as np
 
 from resweep.core.check.kinds import BY_NAME, SEVERITY
+from resweep.core.check.validity import reason
 from resweep.core.solve.settings import STATE_NAMES, SolverSettings
 
 #: Decimals used for every position in the panel and the report (world units).
 DECIMALS = 6
 
 
-def num(v: float, decimals: int = DECIMALS) -> str:
-    """Fixed-point text for one value; NaN and infinities spelled out."""
+#: Rows of ``FrameFacts.vectors`` that hold recorded inputs: a NaN there is spelled "NaN" (it is
+#: what the file holds); in computed rows it means "not computed" and reads "n/a".
+INPUT_ROWS = ("start", "motion", "recorded end", "half extents")
+
+
+def num(v: float, decimals: int = DECIMALS, nan: str = "n/a") -> str:
+    """Fixed-point text for one value; NaN (as ``nan``) and infinities spelled out."""
     v = float(v)
     if np.isnan(v):
-        return "n/a"
+        return nan
     if np.isinf(v):
         return "inf" if v > 0 else "-inf"
     text = f"{v:.{decimals}f}"
     return "0." + "0" * decimals if text.lstrip("-") == "0." + "0" * decimals else text  # no "-0.000000"
+
+
+def cells(label: str, v) -> list[str]:
+    """The texts of one ``FrameFacts.vectors`` row's components (see :data:`INPUT_ROWS`)."""
+    nan = "NaN" if label in INPUT_ROWS else "n/a"
+    return [num(x, nan=nan) for x in np.asarray(v, np.float64)]
 
 
 @dataclass
@@ -47,7 +59,9 @@ class FrameFacts:
     """Everything shown for one entity-frame (world units unless stated).
 
     ``vectors`` holds (label, float64 (3,) or None, length or None) rows: start, motion, recorded
-    end, reference end, difference (recorded end - reference end) and half extents.
+    end, reference end, difference (recorded end - reference end) and half extents. ``invalid``
+    says what makes an invalid row invalid (core ``validity.reason``, e.g. "motion.x is NaN"),
+    "" for a valid row; ``state`` is the reference result ("not solved" for an invalid row).
     """
 
     path: str
@@ -62,6 +76,7 @@ class FrameFacts:
     kinds: list = field(default_factory=list)
     errors: dict = field(default_factory=dict)
     state: str = ""
+    invalid: str = ""
     vectors: list = field(default_factory=list)
     passes: list = field(default_factory=list)
 
@@ -78,6 +93,9 @@ def frame_facts(session, state, col: int) -> FrameFacts:
     facts.errors = {k: float(rows.error[col, BY_NAME[k].bit]) for k in facts.kinds}
     facts.state = STATE_NAMES.get(int(rows.state[col]), str(int(rows.state[col])))
     rec = np.asarray(state.recorded_end[col], np.float64)
+    if "invalid" in facts.kinds:
+        facts.invalid = reason(state.start[col], state.motion[col], rec, state.half[col], session.settings.dtype)
+        facts.state = "not solved (invalid row)"
     ref = np.asarray(rows.ref_end[col], np.float64)
     motion = np.asarray(state.motion[col], np.float64)
     diff = rec - ref
@@ -98,23 +116,25 @@ def frame_facts(session, state, col: int) -> FrameFacts:
     return facts
 
 
-def _settings_args(s: SolverSettings) -> list[str]:
-    """Command-line options for the settings that differ from the defaults."""
+def _settings_args(s: SolverSettings, every: bool = False) -> list[str]:
+    """Command-line options for the settings that differ from the defaults (``every``: all of them,
+    for ``view``, whose defaults are the viewer's remembered settings)."""
     d = SolverSettings()
     out = []
     for name in ("tolerance", "skin", "passes", "precision"):
         v = getattr(s, name)
-        if v != getattr(d, name):
-            out += [f"--{name}", f"{v:g}" if isinstance(v, float) else str(v)]
+        if every or v != getattr(d, name):
+            out += [f"--{name}", repr(float(v)) if isinstance(v, float) else str(v)]
     return out
 
 
-def view_command(path: str, frame: int, entity_id: int | None) -> str:
-    """The ``resweep view`` command that reopens this view."""
+def view_command(path: str, frame: int, entity_id: int | None, settings: SolverSettings = SolverSettings()) -> str:
+    """The ``resweep view`` command that reopens this view with these solver settings (all of them:
+    an option left out would mean the remembered setting of whoever runs it)."""
     args = ["resweep", "view", str(path), "--frame", str(frame)]
     if entity_id is not None:
         args += ["--entity", str(entity_id)]
-    return shlex.join(args)
+    return shlex.join(args + _settings_args(settings, every=True))
 
 
 def snapshot_command(path: str, frame: int, entity_id: int | None, settings: SolverSettings,
@@ -157,7 +177,9 @@ def report_markdown(facts: FrameFacts | None, path: str, frame: int, time: float
         elif facts.kinds:
             lines.append("- **Divergences:**")
             for k in facts.kinds:
-                lines.append(f"  - `{k}` ({SEVERITY[k]}): error {_error_text(k, facts.errors[k], facts.voxel_size)}")
+                what = facts.invalid if k == "invalid" else "error " + _error_text(k, facts.errors[k],
+                                                                                   facts.voxel_size)
+                lines.append(f"  - `{k}` ({SEVERITY[k]}): {what}")
         else:
             lines.append("- **Divergences:** none (recorded and reference ends agree)")
         if facts.active:
@@ -165,14 +187,14 @@ def report_markdown(facts: FrameFacts | None, path: str, frame: int, time: float
                           f"(1 voxel = {facts.voxel_size:g} world units).", "",
                       "| quantity | x | y | z | length |", "|---|---:|---:|---:|---:|"]
             for label, v, length in facts.vectors:
-                cells = [num(x) for x in v]
-                lines.append(f"| {label} | " + " | ".join(cells) + f" | {num(length) if length is not None else ''} |")
+                lines.append(f"| {label} | " + " | ".join(cells(label, v))
+                             + f" | {num(length) if length is not None else ''} |")
             if facts.passes:
                 lines += ["", "| pass | time of impact (fraction of pass motion) | normal | hit voxel | block | "
                               "candidates tested |", "|---:|---:|---|---|---|---:|"]
                 for p in facts.passes:
                     vox = str(list(p.voxel)) if p.voxel is not None else "-"
                     lines.append(f"| {p.index} | {num(p.toi)} | {list(p.normal)} | {vox} | {p.block} | {p.candidates} |")
-    lines += ["", "Reproduce:", "", "```sh", view_command(path, frame, eid),
+    lines += ["", "Reproduce:", "", "```sh", view_command(path, frame, eid, settings),
               snapshot_command(path, frame, eid, settings), "```", ""]
     return "\n".join(lines)

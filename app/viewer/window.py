@@ -25,6 +25,7 @@ from resweep.app.viewer.report_md import frame_facts, report_markdown, snapshot_
 from resweep.app.viewer.flags import TraceFlags
 from resweep.app.viewer.timeline import ACCENT, GROOVE, INK, PANEL, Timeline, draw_icon
 from resweep.app.viewer.worker import TraceWorker, error_line
+from resweep.sample_traces import demo_path
 
 ORG, APP = "resweep", "resweep view"
 MAX_RECENT = 8
@@ -367,9 +368,9 @@ class MainWindow(QMainWindow):
         self.status(f"divergence filter: {self.pb.kind or 'every kind'}")
 
     # -- picture and report --------------------------------------------------------------------
-    def picture(self) -> QImage:
+    def picture_array(self) -> np.ndarray:
         """The viewport as it is now with the caption band below (the same composer as
-        ``resweep snapshot``): QImage RGB888."""
+        ``resweep snapshot``): uint8 (H, W, 3)."""
         from resweep.app.scene.caption import caption_lines
         from resweep.app.scene.picture import compose
         if self.plotter is not None:
@@ -383,12 +384,22 @@ class MainWindow(QMainWindow):
         have = self.state is not None and self.pb.focus is not None
         lines = caption_lines(self.session, self.state, self.pb.focus) if have else []
         legend = self.viewport.legend if self.viewport is not None else []
-        out = np.ascontiguousarray(compose(view, lines, legend))
+        return np.ascontiguousarray(compose(view, lines, legend))
+
+    def picture(self) -> QImage:
+        """:meth:`picture_array` as a QImage RGB888."""
+        out = self.picture_array()
         h, w = out.shape[:2]
         return QImage(out.data, w, h, 3 * w, QImage.Format.Format_RGB888).copy()
 
     def save_picture(self, path: str) -> bool:
-        ok = self.picture().save(str(path), "PNG")
+        """Write the picture to ``path`` (PNG, or JPEG for .jpg/.jpeg), atomically."""
+        from resweep.app.scene.picture import save_picture
+        try:
+            save_picture(self.picture_array(), path)
+            ok = True
+        except (OSError, ValueError):
+            ok = False
         self.status(f"saved {path}" if ok else f"could not write {path}")
         return ok
 
@@ -528,12 +539,6 @@ class ShortcutsDialog(QDialog):
         self.resize(520, 640)
 
 
-def demo_path() -> str:
-    """The bundled demo trace (package data, present after a plain pip install)."""
-    from importlib.resources import files
-    return str(files("resweep.sample_traces") / "quarry.h5")
-
-
 def apply_identity(app: QApplication):
     """The viewer's own look: a dark slate palette with a teal accent."""
     app.setStyle("Fusion")
@@ -558,14 +563,17 @@ def apply_identity(app: QApplication):
     app.setWindowIcon(draw_icon("logo", size=64))
 
 
-def run_window(trace: str | None, frame: int = 0, entity_id: int | None = None) -> int:
-    """Start the application, open ``trace`` (the demo when None) and run until the window closes."""
+def run_window(trace: str | None, frame: int = 0, entity_id: int | None = None, settings: dict | None = None) -> int:
+    """Start the application, open ``trace`` (the demo when None) and run until the window closes.
+    ``settings``: SolverSettings fields that override the remembered ones for this run."""
     import sys
     app = QApplication.instance() or QApplication(sys.argv[:1])
     app.setOrganizationName(ORG)
     app.setApplicationName(APP)
     apply_identity(app)
     win = MainWindow()
+    if settings:
+        win.pb.update_settings(**settings)
     win.show()
     win.open_path(trace if trace is not None else demo_path(), frame, entity_id)
     return app.exec()

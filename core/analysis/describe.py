@@ -3,11 +3,13 @@ from __future__ import annotations
 
 import numpy as np
 
+from resweep.core.check.validity import reason, valid_rows
 from resweep.core.format.reader import Trace
 
 
 def describe(trace: Trace, max_problems: int = 20) -> dict:
-    """JSON-ready facts about ``trace``; scans every frame block for invalid active rows."""
+    """JSON-ready facts about ``trace``; scans every frame block for invalid active rows (judged
+    in the file's float type; ``check --precision float32`` may find more, e.g. 1e300)."""
     bounds = trace.world_bounds()
     counts = np.bincount(trace.chunk_blocks.reshape(-1), minlength=1) if trace.chunk_blocks.size else np.zeros(1, int)
     used = [int(t) for t in np.flatnonzero(counts)]
@@ -20,16 +22,13 @@ def describe(trace: Trace, max_problems: int = 20) -> dict:
     for blk in trace.iter_frames():
         act = blk.active
         active_rows += int(act.sum())
-        with np.errstate(invalid="ignore"):
-            ok = (np.isfinite(blk.start).all(-1) & np.isfinite(blk.motion).all(-1) & np.isfinite(blk.end).all(-1)
-                  & np.isfinite(blk.half).all(-1) & (np.asarray(blk.half) > 0).all(-1))
-        bad = act & ~ok
+        bad = act & ~valid_rows(blk.start, blk.motion, blk.end, blk.half)
         invalid_rows += int(bad.sum())
         for f, c in zip(*np.nonzero(bad)):
             if len(problems) >= max_problems:
                 break
-            problems.append(f"frame {blk.f0 + f}, entity {trace.ids[c]}: non-finite position or motion, or "
-                            "non-positive half extents (reported as invalid)")
+            why = reason(blk.start[f, c], blk.motion[f, c], blk.end[f, c], blk.half[f, c])
+            problems.append(f"frame {blk.f0 + f}, entity {trace.ids[c]}: {why} (reported as invalid)")
     if invalid_rows > max_problems:
         problems.append(f"... {invalid_rows} invalid rows in all")
     t = trace.time

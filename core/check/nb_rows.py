@@ -23,6 +23,7 @@ ROWS_PER_TASK = 256
 
 @kernel()  # called once per pass or row: not worth inlining (compile time)
 def row_valid(s, m, e, h):
+    """The rule of ``check/validity.py`` for one row (a test holds the two equal)."""
     for a in range(3):
         if not (np.isfinite(s[a]) and np.isfinite(m[a]) and np.isfinite(e[a]) and np.isfinite(h[a])):
             return False

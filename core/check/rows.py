@@ -71,7 +71,10 @@ class RowResults:
 
 
 def _rows(a, dtype) -> np.ndarray:
-    return np.ascontiguousarray(np.asarray(a).reshape(-1, 3), dtype=dtype)
+    out = np.ascontiguousarray(np.asarray(a).reshape(-1, 3), dtype=dtype)
+    # numba types a read-only array (np.broadcast_to, a read-only memory map) apart from a writable
+    # one: passing it would compile and cache a second copy of every kernel (~45 s).
+    return out if out.flags.writeable else out.copy()
 
 
 def solve_rows(world: VoxelWorld, start, motion, recorded_end, half, settings: SolverSettings,

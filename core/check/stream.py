@@ -6,7 +6,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from resweep.core.check import nb_gather
-from resweep.core.check.kinds import BY_NAME, DISCONTINUITY, KINDS, SEVERITY, kind_mask, kinds_of
+from resweep.core.check import validity
+from resweep.core.check.kinds import BY_NAME, DISCONTINUITY, INVALID, KINDS, SEVERITY, kind_mask, kinds_of
 from resweep.core.check.rows import RowResults, solve_rows
 from resweep.core.solve.settings import SolverSettings
 from resweep.core.format.reader import Trace
@@ -15,8 +16,13 @@ from resweep.core.format.reader import Trace
 
 @dataclass
 class Divergence:
-    """One kind found on one entity-frame. Positions in world units; ``error`` in world units
-    (None for ``invalid``); ``passes`` lists the reference passes as dicts t / normal / voxel."""
+    """One kind found on one entity-frame.
+
+    ``time`` in seconds; ``start``, ``motion`` and the ends in world units (None for a
+    non-finite component); ``error`` in world units (None for ``invalid``); ``reason`` says what
+    makes an ``invalid`` row invalid (``validity.reason``, e.g. "motion.x is NaN"), None for other
+    kinds; ``passes`` lists the reference passes as dicts t / normal / voxel.
+    """
 
     frame: int
     entity: int
@@ -26,11 +32,17 @@ class Divergence:
     reference_end: list
     error: float | None
     passes: list
+    time: float = 0.0
+    name: str = ""
+    start: list = field(default_factory=list)
+    motion: list = field(default_factory=list)
+    reason: str | None = None
 
     def as_json(self) -> dict:
-        return {"frame": self.frame, "entity": self.entity, "kind": self.kind, "severity": self.severity,
+        return {"frame": self.frame, "time": self.time, "entity": self.entity, "name": self.name,
+                "kind": self.kind, "severity": self.severity, "start": self.start, "motion": self.motion,
                 "recorded_end": self.recorded_end, "reference_end": self.reference_end, "error": self.error,
-                "passes": self.passes}
+                "reason": self.reason, "passes": self.passes}
 
 
 @dataclass
@@ -126,7 +138,7 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
             rows.error[disc, DISCONTINUITY] = gap[disc]
             report.entity_frames += M
             _count(report, rows.flags)
-            _collect(report, trace, rows, blk.end, fr, col, blk.f0, limit)
+            _collect(report, trace, rows, blk, fr, col, limit, dt)
             if on_block is not None:
                 on_block(BlockResult(fr + blk.f0, col, rows))
         prev_end = np.asarray(blk.end[-1], np.float64)
@@ -171,18 +183,24 @@ def _count(report: TraceReport, flags: np.ndarray):
         report.counts[kind] += int(np.count_nonzero(nz & kind_mask(kind)))
 
 
-def _collect(report: TraceReport, trace: Trace, rows: RowResults, block_end, fr, cols, f0: int, limit: int):
-    """Append the divergences of solved rows (frames ``f0 + fr``, columns ``cols``) up to ``limit``;
-    recorded ends are read from the block (file dtype) only for the rows kept."""
+def _collect(report: TraceReport, trace: Trace, rows: RowResults, blk, fr, cols, limit: int, dtype):
+    """Append the divergences of solved rows (frames ``blk.f0 + fr``, columns ``cols``) up to
+    ``limit``; inputs are read from the block (file dtype) only for the rows kept. ``dtype``: the
+    solve's float type (an invalid row's reason is judged in it, as the kernel judged the row)."""
     if len(report.divergences) >= limit:
         return
     for i in np.flatnonzero(rows.flags):
+        r, c = fr[i], cols[i]
+        row = (blk.start[r, c], blk.motion[r, c], blk.end[r, c], blk.half[r, c])
         for kind in kinds_of(rows.flags[i]):
             if len(report.divergences) >= limit:
                 return
             err = float(rows.error[i, BY_NAME[kind].bit])
             report.divergences.append(Divergence(
-                int(f0 + fr[i]), int(trace.ids[cols[i]]), kind, SEVERITY[kind],
-                _finite_list(block_end[fr[i], cols[i]]), _finite_list(rows.ref_end[i]),
-                err if np.isfinite(err) else None, pass_list(rows, i)))
+                int(blk.f0 + r), int(trace.ids[c]), kind, SEVERITY[kind],
+                _finite_list(row[2]), _finite_list(rows.ref_end[i]),
+                err if np.isfinite(err) else None, pass_list(rows, i),
+                time=float(trace.time[blk.f0 + r]), name=str(trace.names[c]),
+                start=_finite_list(row[0]), motion=_finite_list(row[1]),
+                reason=validity.reason(*row, dtype=dtype) if BY_NAME[kind].bit == INVALID else None))
 

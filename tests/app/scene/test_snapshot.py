@@ -16,14 +16,13 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-pv = pytest.importorskip("pyvista")
-
+import pyvista as pv  # a hard dependency: a broken install fails here, it does not skip
 from PIL import Image, ImageDraw  # noqa: E402
 
 from resweep.app.scene import style  # noqa: E402
 from resweep.app.scene.caption import BAND_RGB, TEXT_RGB, band_layout, caption_lines  # noqa: E402
 from resweep.core.analysis.frames import TraceSession  # noqa: E402
-from resweep.app.scene.picture import render_picture, save_png  # noqa: E402
+from resweep.app.scene.picture import render_picture, save_picture  # noqa: E402
 from resweep.app.scene.viewport import Viewport, ViewOptions  # noqa: E402
 from resweep.core import SolverSettings, check_trace, open_trace  # noqa: E402
 
@@ -81,6 +80,11 @@ def test_cli_writes_a_png_of_the_requested_size(tmp_path):
     (["--frame", "3", "-o", "/nonexistent-folder/x.png"], "cannot write the picture (folder does not exist)"),
     (["--frame", "3", "--passes", "0"], "passes=0"),
     (["--frame", "3", "-o", "{tmp}"], "cannot write the picture (is a directory)"),
+    (["--frame", "3", "-o", "{tmp}/x.gif"], "unknown picture type ('.gif'); name the file .png, .jpg or .jpeg"),
+    (["--frame", "3", "-o", "{tmp}/x"], "unknown picture type (no suffix)"),
+    (["--frames", "230:240", "-o", "{tmp}"], "frame 240 is out of range (valid frames are 0..239)"),
+    (["--frames", "3:5", "-o", "{tmp}/x.png"], "--frames writes one picture per frame into a folder (no such folder)"),
+    (["--frames", "5:3", "-o", "{tmp}"], "need 0 <= A <= B"),
 ])
 def test_cli_errors_are_one_line_with_status_2(tmp_path, argv, message):
     if "-o" not in argv:
@@ -91,14 +95,55 @@ def test_cli_errors_are_one_line_with_status_2(tmp_path, argv, message):
     assert r.returncode == 2
     lines = r.stderr.strip().splitlines()
     assert len(lines) == 1 and message in lines[0] and lines[0].startswith("resweep snapshot: ")
-    assert not (tmp_path / "x.png").exists()
+    assert list(tmp_path.iterdir()) == []  # nothing written, not even part of a picture
+
+
+@pytest.mark.parametrize("name", ["out.jpg", "OUT.JPEG"])
+def test_cli_writes_a_jpeg_for_a_jpeg_name(tmp_path, name):
+    out = tmp_path / name
+    r = subprocess.run([resweep_exe(), "snapshot", str(QUARRY), "--frame", "40", "--size", "320x200",
+                        "-o", str(out)], capture_output=True, text=True, timeout=300)
+    assert r.returncode == 0, r.stderr
+    data = out.read_bytes()
+    # JPEG: SOI marker FF D8 then a marker segment (ITU T.81, Annex B); ends with EOI FF D9.
+    assert data[:3] == b"\xff\xd8\xff" and data[-2:] == b"\xff\xd9"
+    with Image.open(out) as im:
+        assert im.format == "JPEG" and im.size == (320, 200)
+    assert [p.name for p in tmp_path.iterdir()] == [name]  # no temporary file left behind
+
+
+def test_cli_frames_range_renders_each_frame_into_a_folder(session, tmp_path):
+    r = subprocess.run([resweep_exe(), "snapshot", str(QUARRY), "--frames", "39:41", "--entity", "102",
+                        "--size", "320x200", "-o", str(tmp_path)], capture_output=True, text=True, timeout=300)
+    assert r.returncode == 0, r.stderr
+    names = sorted(p.name for p in tmp_path.iterdir())
+    assert names == ["quarry-f39-e102.png", "quarry-f40-e102.png", "quarry-f41-e102.png"]
+    # One plotter reused for the sequence draws what a fresh plotter per picture draws.
+    for f in (39, 40, 41):
+        got = np.asarray(Image.open(tmp_path / f"quarry-f{f}-e102.png"))
+        assert np.array_equal(got, render_picture(session, f, 102, size=(320, 200)))
+
+
+def test_frames_default_entity_is_the_one_chosen_at_the_first_frame(session, tmp_path):
+    col = session.default_column(40)
+    eid = int(session.trace.ids[col])
+    r = subprocess.run([resweep_exe(), "snapshot", str(QUARRY), "--frames", "40:41", "--size", "160x120",
+                        "-o", str(tmp_path)], capture_output=True, text=True, timeout=300)
+    assert r.returncode == 0, r.stderr
+    assert sorted(p.name for p in tmp_path.iterdir()) == [f"quarry-f40-e{eid}.png", f"quarry-f41-e{eid}.png"]
+
+
+def test_picture_suffixes_of_the_cli_are_the_scenes():
+    from resweep.app.cli.snapshot import SUFFIXES
+    from resweep.app.scene.picture import PICTURE_TYPES
+    assert set(SUFFIXES) == set(PICTURE_TYPES)
 
 
 @pytest.mark.parametrize("size", [(640, 360), (333, 217)])
 def test_render_picture_is_exactly_the_requested_size(session, tmp_path, size):
     img = render_picture(session, 40, size=size)
     assert img.dtype == np.uint8 and img.shape == (size[1], size[0], 3)
-    save_png(img, tmp_path / "p.png")
+    save_picture(img, tmp_path / "p.png")
     assert png_size(tmp_path / "p.png") == size
 
 

@@ -103,7 +103,8 @@ def test_cli_exit_2_one_line_no_traceback(good, tmp_path, case):
     edit, needles = CASES[case]
     path = _mutated(good, tmp_path, edit)
     before = hashlib.sha256(path.read_bytes()).hexdigest()
-    for cmd in (["check", path], ["info", path]):
+    for cmd in (["check", path], ["info", path], ["view", path],
+                ["snapshot", path, "--frame", "0", "-o", tmp_path / "x.png"]):
         r = _cli(*cmd)
         assert r.returncode == 2, r.stderr
         lines = [ln for ln in r.stderr.splitlines() if ln.strip() and "compiling" not in ln]
@@ -184,12 +185,14 @@ def test_nan_rows_reported_invalid_rest_checked(tmp_path):
     path = write_rows(tmp_path / "nan.h5", start, motion, end, frame_half_extents=half)
     with open_trace(path) as tr:
         report = check_trace(tr, SolverSettings())
-    invalid = sorted((d.frame, d.entity) for d in report.divergences if d.kind == "invalid")
-    assert invalid == [(0, 20), (1, 10), (2, 20)]
+    invalid = sorted((d.frame, d.entity, d.reason) for d in report.divergences if d.kind == "invalid")
+    assert invalid == [(0, 20, "half_extents.z is 0 (must be > 0)"), (1, 10, "start.y is NaN"),
+                       (2, 20, "end.x is inf")]
     assert report.entity_frames == 6
     assert report.counts["invalid"] == 3
     r = _cli("check", path)
     assert r.returncode == 1 and "invalid" in r.stdout
+    assert "start.y is NaN" in r.stdout and "end.x is inf" in r.stdout
 
 
 def test_inactive_rows_are_never_read(tmp_path):

@@ -48,7 +48,8 @@ def test_missing_trace_is_one_line_naming_the_file(tmp_path):
     assert r.stderr.strip().splitlines() == [f"resweep view: {missing}: no such file"]
 
 
-def test_view_without_a_trace_opens_the_bundled_demo(qtbot, tmp_path):
+def run_window_and_look(tmp_path, *args) -> dict:
+    """``run_window(*args)`` until its first frame is on screen; what the window then holds."""
     from resweep.app.viewer.window import run_window
     QSettings.setPath(QSettings.Format.NativeFormat, QSettings.Scope.UserScope, str(tmp_path))
     seen = {}
@@ -57,11 +58,45 @@ def test_view_without_a_trace_opens_the_bundled_demo(qtbot, tmp_path):
         wins = [w for w in QApplication.topLevelWidgets() if w.__class__.__name__ == "MainWindow" and w.isVisible()]
         if wins and wins[0].state is not None:
             w = wins[0]
-            seen.update(path=w.session.path, frame=w.pb.frame, focus=w.pb.focus)
+            seen.update(path=w.session.path, frame=w.pb.frame, focus=w.pb.focus, settings=w.pb.settings,
+                        session_settings=w.session.settings)
             w.close()
         else:
             QTimer.singleShot(50, poll)
     QTimer.singleShot(50, poll)
-    run_window(None, 40, 102)
+    run_window(*args)
+    return seen
+
+
+def test_view_without_a_trace_opens_the_bundled_demo(qtbot, tmp_path):
+    seen = run_window_and_look(tmp_path, None, 40, 102)
     assert os.path.samefile(seen["path"], DEMO)
     assert seen["frame"] == 40 and seen["focus"] == 1
+
+
+@pytest.mark.parametrize("argv, message", [
+    (["{demo}", "--frame", "240"], "resweep view: {demo}: frame 240 is out of range (valid frames are 0..239)"),
+    (["{demo}", "--entity", "999"], "resweep view: {demo}: entity id 999 is not in the trace (ids: 101, 102, 103, "
+                                    "104, 105)"),
+    (["{demo}", "--passes", "0"], "resweep view: passes=0: must be an integer in 1..8"),
+    (["{bad}"], "resweep view: {bad}: "),
+])
+def test_view_checks_trace_frame_entity_and_settings_before_any_window(tmp_path, argv, message):
+    bad = tmp_path / "bad.h5"
+    bad.write_bytes(b"\x89HDF\r\n\x1a\nnot really a trace" * 20)
+    subst = {"{demo}": str(DEMO), "{bad}": str(bad)}
+    argv = [subst.get(a, a) for a in argv]
+    for k, v in subst.items():
+        message = message.replace(k, v)
+    # No display at all: the refusal comes from the checks, before the display is even looked at.
+    r = view(*argv, env=bare_env())
+    assert r.returncode == 2 and r.stdout == ""
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith(message), lines
+    assert "no display" not in lines[0]
+
+
+def test_view_solver_options_reach_the_window(qtbot, tmp_path):
+    from resweep.core.solve.settings import SolverSettings
+    seen = run_window_and_look(tmp_path, str(DEMO), 40, 102, {"passes": 2, "precision": "float32"})
+    assert seen["settings"] == seen["session_settings"] == SolverSettings(passes=2, precision="float32")

@@ -202,17 +202,54 @@ def test_viewport_picture_changes_between_frames_without_rebuilding_voxels(qtbot
     assert a.shape[2] == 3 and a.std() > 5  # a real picture, not a blank
 
 
-def test_saved_picture_has_the_caption_band(qtbot, demo_window, tmp_path):
-    win = demo_window
-    win.pb.set_frame(40)
-    view = grab(win)
-    out = tmp_path / "pic.png"
-    assert win.save_picture(str(out))
-    from PyQt6.QtGui import QImage
-    img = QImage(str(out))
-    assert img.width() == view.shape[1] and img.height() > view.shape[0] + 20
-    assert "frame 40" in " ".join(__import__("resweep.app.scene.caption", fromlist=["x"]).caption_lines(
-        win.session, win.state, win.pb.focus))
+def expected_caption(frame: int, eid: int) -> list[str]:
+    """The caption of the dasher's picture written out from the core's check (not from caption.py):
+    file and frame, entity id and name, kinds with errors and the first reference hit, settings."""
+    with open_trace(DEMO) as tr:
+        rep = check_trace(tr, SolverSettings(), limit=10 ** 6)
+        name, last, t = tr.names[tr.entity_index(eid)], tr.frame_count - 1, float(tr.time[frame])
+    ds = [d for d in rep.divergences if d.frame == frame and d.entity == eid]
+    kinds = ", ".join(f"{d.kind} [{d.severity}]" + ("" if d.error is None else f" {d.error:.4f}") for d in ds)
+    hits = [p["voxel"] for p in ds[0].passes if p["voxel"] is not None]
+    if hits:  # the dasher's dash stops at the demo's plank wall (core/demo/quarry.py)
+        v = hits[0]
+        kinds += f"; reference stops at plank wall ({v[0]}, {v[1]}, {v[2]})"
+    settings = "reference: sweep and slide, 3 passes, skin 0.001, tolerance 0.01 voxels, float64"  # the defaults
+    return [f"quarry.h5   frame {frame} of 0..{last}   t = {t:.3f} s", f"entity {eid} {name}", kinds, settings]
+
+
+def test_saved_picture_has_the_caption_band_that_says_what_is_shown(qtbot, window, tmp_path):
+    from PIL import Image, ImageDraw, ImageFont
+    from resweep.app.scene.caption import BAND_RGB, TEXT_RGB
+    open_and_wait(qtbot, window, DEMO, frame=40, entity=102)
+    view = grab(window)[..., :3].astype(np.uint8)
+    (tmp_path / "pics").mkdir()
+    out = tmp_path / "pics" / "pic.png"
+    assert window.save_picture(str(out))
+    saved = np.asarray(Image.open(out).convert("RGB"))
+    H, W = view.shape[:2]
+    assert saved.shape[1] == W and np.array_equal(saved[:H], view)  # the view, then the band below it
+    band = saved[H:]
+    # The text drawn here from the layout documented in app/scene/caption.py (not its code), for a
+    # picture a third taller than the view (picture.compose), with the core's text.
+    lines = expected_caption(40, 102)
+    fs = int(np.clip(round(0.03 * (H + H // 3)), 10, 30))
+    pad, line_h = max(3, fs // 2), int(round(1.3 * fs))
+    font = ImageFont.load_default(size=fs)
+    want = Image.new("RGB", (W, band.shape[0]), BAND_RGB)
+    draw = ImageDraw.Draw(want)
+    for i, text in enumerate(lines):
+        draw.text((pad, pad + i * line_h), text, font=font, fill=TEXT_RGB)
+    text_h = min(band.shape[0], pad + len(lines) * line_h)
+    text_w = pad + max(int(np.ceil(font.getlength(t))) for t in lines)  # the legend starts beyond this
+    want = np.asarray(want)[:text_h, :text_w]
+    assert np.array_equal(band[:text_h, :text_w], want)
+    assert (want != np.array(BAND_RGB, np.uint8)).any(axis=2).sum() > 500  # real text pixels compared
+    # The comparison can fail: the next frame's saved band does not match this frame's text.
+    window.pb.set_frame(41)
+    assert window.save_picture(str(out))
+    assert not np.array_equal(np.asarray(Image.open(out).convert("RGB"))[H:][:text_h, :text_w], want)
+    assert [p.name for p in (tmp_path / "pics").iterdir()] == ["pic.png"]  # written whole, no temporary file left
 
 
 def test_broken_file_shows_the_core_message_and_keeps_the_window(qtbot, demo_window, tmp_path, monkeypatch):
@@ -242,11 +279,42 @@ def test_copy_report_holds_the_numbers_and_commands_that_reproduce_the_view(qtbo
     assert "tunneling" in md and f"{row.ref_end[0, 0]:.6f}" in md
     assert f"{float(row.error[0, KINDS.index('tunneling')]):.6f}" in md
     cmds = [ln for ln in md.splitlines() if ln.startswith("resweep ")]
-    assert shlex.split(cmds[0])[1:] == ["view", str(DEMO), "--frame", "40", "--entity", "102"]
+    assert shlex.split(cmds[0])[1:] == ["view", str(DEMO), "--frame", "40", "--entity", "102", "--tolerance", "0.01",
+                                        "--skin", "0.001", "--passes", "3", "--precision", "float64"]
     parser = build_parser()
     for c in cmds:  # both commands parse with the real command line
         args = parser.parse_args(shlex.split(c)[1:])
         assert args.frame == 40 and args.entity == 102
+
+
+def test_reproduce_lines_carry_the_solver_settings_in_use(qtbot, window):
+    open_and_wait(qtbot, window, DEMO, frame=40, entity=102)
+    window.pb.update_settings(tolerance=0.05, skin=0.002, passes=2, precision="float32")
+    md = window.report()
+    cmds = [ln for ln in md.splitlines() if ln.startswith("resweep ")]
+    assert [shlex.split(c)[1] for c in cmds] == ["view", "snapshot"]
+    parser = build_parser()
+    for c in cmds:  # each command, parsed by the real command line, asks for the same settings
+        args = parser.parse_args(shlex.split(c)[1:])
+        got = SolverSettings(args.tolerance, args.skin, args.passes, args.precision)
+        assert got == window.pb.settings == SolverSettings(0.05, 0.002, 2, "float32")
+        assert args.frame == 40 and args.entity == 102
+
+
+def test_invalid_row_says_what_is_invalid_in_panel_and_report(qtbot, window):
+    # Demo frame 77: the hopper (entity 105) records a NaN motion.x (core/demo/quarry.py).
+    open_and_wait(qtbot, window, DEMO, frame=77, entity=105)
+    with open_trace(DEMO) as tr:
+        b = tr.frames(77, 78)
+        assert np.isnan(b.motion[0, tr.entity_index(105), 0])
+    text = window.frame_panel.toPlainText()
+    assert "motion.x is NaN" in text and "reference: clear" not in text
+    assert "reference: not solved (invalid row)" in text
+    (motion_line,) = [ln for ln in text.splitlines() if ln.startswith("motion ")]
+    assert motion_line.split()[1] == "NaN"
+    md = window.report()
+    assert "- `invalid` (error): motion.x is NaN" in md and "n/a" not in md.split("| quantity")[0]
+    assert "Reference result: not solved (invalid row)" in md
 
 
 def test_play_pause_advances_at_the_chosen_rate(qtbot, demo_window):
