@@ -5,12 +5,13 @@ Band layout: text lines at the left, one every ``line_h`` pixels from ``pad``; t
 """
 from __future__ import annotations
 
+import textwrap
 from dataclasses import dataclass
 
 import numpy as np
 from PIL import Image, ImageDraw, ImageFont
 
-from resweep.core.check.kinds import SEVERITY
+from resweep.core.check.kinds import BY_NAME
 
 BAND_RGB = (30, 34, 42)
 TEXT_RGB = (236, 238, 242)
@@ -23,9 +24,12 @@ def settings_line(settings) -> str:
             f"tolerance {settings.tolerance:g} voxels, {settings.precision}")
 
 
-def caption_lines(session, state, col: int) -> list[str]:
-    """Four lines: trace file and frame/time; entity id and name; divergence kinds with their
-    errors (world units) and the first hit of the reference solve; the solver settings."""
+def caption_lines(session, state, col: int, story=None) -> list[str]:
+    """The caption: trace file and frame/time; entity id and name (and where the reference stops);
+    the kind told in words (its label from the kinds table) with its error in world units and
+    voxels and the error's axis, other kinds of the row; the kind's meaning; the solver settings.
+    ``story``: the :class:`~resweep.app.scene.story.Story` drawn (made here when None)."""
+    from resweep.app.scene.story import AXES, tell_story
     tr = session.trace
     last = tr.frame_count - 1
     lines = [f"{session.name}   frame {state.frame} of 0..{last}   t = {state.time:.3f} s"]
@@ -36,21 +40,48 @@ def caption_lines(session, state, col: int) -> list[str]:
         lines.append(who + "   (not active at this frame)")
         lines.append("nothing solved")
         return lines + [settings_line(session.settings)]
-    lines.append(who)
-    kinds = state.kinds(col)
-    if not kinds:
-        lines.append(f"no divergence (tolerance {session.settings.tolerance:g} voxels)")
-    else:
-        parts = []
-        for k, err in state.errors(col).items():
-            parts.append(f"{k} [{SEVERITY[k]}]" + ("" if err is None else f" {err:.4f}"))
-        lines.append(", ".join(parts))
     hit = np.flatnonzero(state.rows.block[col] >= 0)
-    if len(hit) and not lines[-1].startswith("no "):
+    if len(hit):
         k = int(hit[0])
         v = ", ".join(str(int(x)) for x in state.rows.voxel[col, k])
-        lines[-1] += f"; reference stops at {session.world.shapes.name(int(state.rows.block[col, k]))} ({v})"
+        who += f"   reference stops at {session.world.shapes.name(int(state.rows.block[col, k]))} ({v})"
+    lines.append(who)
+    story = story if story is not None else tell_story(session, state, col)
+    if story is None or story.kind is None:
+        lines.append(f"no divergence: recorded and reference ends agree within {session.settings.tolerance:g} voxels")
+        return lines + [settings_line(session.settings)]
+    vs = session.world.voxel_size
+    kind = BY_NAME[story.kind]
+    text = f"{kind.label.upper()} ({kind.name}, {kind.severity})"
+    if story.error is not None:
+        axis = ""
+        if story.dim is not None:
+            axis = f" along {AXES[int(np.argmax(np.abs(np.subtract(story.dim[1], story.dim[0]))))]}"
+        text += f": {story.error:.4g} world units = {story.error / vs:.4g} voxels{axis}"
+    if story.kind == "invalid":
+        text += ": " + invalid_fields(state, col)
+    others = [k for k in story.kinds if k != story.kind]
+    if others:
+        errs = state.errors(col)
+        text += "; also " + ", ".join(k + ("" if errs[k] is None else f" {errs[k]:.4g}") for k in others)
+    lines.append(text)
+    lines += textwrap.wrap("what it means: " + kind.meaning, 96)
     return lines + [settings_line(session.settings)]
+
+
+def invalid_fields(state, col: int) -> str:
+    """Which recorded fields of an invalid row are unusable, named (e.g. "end is NaN")."""
+    out = []
+    for name, v in (("start", state.start[col]), ("motion", state.motion[col]), ("end", state.recorded_end[col]),
+                    ("half extents", state.half[col])):
+        v = np.asarray(v, np.float64)
+        if np.isnan(v).any():
+            out.append(f"{name} is NaN")
+        elif not np.isfinite(v).all():
+            out.append(f"{name} is infinite")
+        elif name == "half extents" and (v <= 0).any():
+            out.append("half extents not positive")
+    return ", ".join(out) or "unusable row"
 
 
 @dataclass(frozen=True)

@@ -31,24 +31,26 @@ def pick_column(session, frame: int, entity_id=None) -> int:
 
 
 def render_picture(session, frame, entity_id=None, size=(1280, 720), options=ViewOptions(),
-                   camera: str = "follow") -> np.ndarray:
+                   camera: str = "story") -> np.ndarray:
     """uint8 (H, W, 3) picture of ``frame`` focused on ``entity_id`` (see :func:`pick_column`),
     caption band at the bottom; (W, H) = ``size`` exactly."""
     W, H = (int(v) for v in size)
     col = pick_column(session, frame, entity_id)
     state = session.frame_state(frame)
-    lines = caption_lines(session, state, col)
     # The legend depends on what gets drawn, so lay out with the widest legend first and redo
     # the band (not the render) when the real one differs in rows.
     plotter = pv.Plotter(off_screen=True, window_size=(W, max(MIN_VIEW_H, H // 2)))
     try:
         vp = Viewport(plotter)
+        vp.enable_inset()
         vp.set_session(session)
         vp.show(state, col, options)
+        lines = caption_lines(session, state, col, vp.story)
         layout = band_layout(W, H, lines, vp.legend)
         view_h = max(MIN_VIEW_H, H - layout.height)
         plotter.window_size = (W, view_h)
         vp.set_camera(camera)
+        vp.show(state, col, options)  # again: the magnified view follows the final camera
         plotter.render()
         view = np.asarray(plotter.screenshot(return_img=True))[..., :3]
         legend = vp.legend

@@ -17,14 +17,20 @@ import pyvista as pv
 from vtkmodules.vtkRenderingCore import vtkRenderer
 
 from resweep.app.scene import style as S
+from resweep.app.scene.story import tell_story
 from resweep.app.scene.voxel_mesh import (Faces, ShapeTables, blocks_sight, box_quads, chunk_faces, concat, contact_quads,
-                         empty_faces, padded_types, select, shape_tables, swept_quads, to_polydata)
+                         cone_quads, empty_faces, padded_types, select, shape_tables, swept_quads, to_polydata)
 
-PRESETS = ("follow", "motion", "top", "side")
-_ROLES = ("start", "recorded", "reference", "swept", "hit", "normal", "slide", "trail", "gap", "others")
+PRESETS = ("story", "follow", "motion", "top", "side")
+_ROLES = ("start", "recorded", "reference", "swept", "hit", "normal", "slide", "trail", "gap", "others",
+          "rec_edges", "hit_edges", "gap_tip", "crossed", "path", "overlap", "previous", "jump")
 _STYLE = {"start": S.START, "recorded": S.RECORDED, "reference": S.REFERENCE, "swept": S.SWEPT,
           "hit": S.HIT_FACE, "normal": S.NORMAL, "slide": S.SLIDE, "trail": S.TRAIL, "gap": S.GAP,
-          "others": S.OTHERS}
+          "others": S.OTHERS, "rec_edges": S.RECORDED_EDGE, "hit_edges": S.HIT_EDGE, "gap_tip": S.GAP_TIP,
+          "crossed": S.CROSSED, "path": S.PATH, "overlap": S.OVERLAP, "previous": S.PREVIOUS, "jump": S.JUMP}
+#: Roles drawn in the layer over the scene: the story's key outlines stay in sight even where a
+#: translucent surface or a sliver of solid lies in front of them.
+_OVER = ("rec_edges", "hit_edges", "gap", "gap_tip", "crossed", "overlap", "jump", "reference")  # reference last: on top
 _VIEW_ANGLE = 30.0  # degrees, the pyvista default
 CHUNK_VARIANTS = 256  # chunk meshes kept, current and earlier contents (a few MB for 16^3 chunks)
 
@@ -71,7 +77,9 @@ class Viewport:
         self.block_legend: list[tuple[str, tuple]] = []
         self._meshes: dict[str, pv.PolyData] = {}
         self._actors = {}
-        self._preset = "follow"
+        self._preset = "story"
+        self.story = None           # Story of the focused column (scene/story.py)
+        self.inset = None           # MagnifiedView, made by enable_inset()
         self._camera_ready = False
         self._focus = None          # float (3,) world point the camera tracks
         self._interest = None       # (lo, hi) bounds of the focused entity's geometry
@@ -133,8 +141,9 @@ class Viewport:
         rw = p.render_window
         rw.SetNumberOfLayers(max(2, rw.GetNumberOfLayers()))
         rw.AddRenderer(self._overlay)
-        vtkRenderer.RemoveActor(p.renderer, self._actors["reference"])
-        self._overlay.AddActor(self._actors["reference"])
+        for role in _OVER:
+            vtkRenderer.RemoveActor(p.renderer, self._actors[role])
+            self._overlay.AddActor(self._actors[role])
         self._actors["voxels"].SetVisibility(False)
 
     def _put(self, role: str, mesh) -> bool:
@@ -181,6 +190,14 @@ class Viewport:
         if cells is None:
             cells = self._quad_cells.setdefault(n, np.arange(4 * n).reshape(n, 4))
         return self._set(role, np.asarray(quads).reshape(-1, 3), cells)
+
+    def enable_inset(self) -> None:
+        """Make the magnified second view (shown beside the main view for small errors)."""
+        if self.inset is None:
+            from resweep.app.scene.inset import MagnifiedView
+            shared = {r: a for r, a in self._actors.items() if r in ("voxels", "start", "recorded", "hit") + _OVER}
+            self.inset = MagnifiedView(self.plotter, self._overlay, shared, _OVER,
+                                       lambda: self.session.world.voxel_size if self.session else 1.0)
 
     # -- session ---------------------------------------------------------------------------------
     def set_session(self, session) -> None:
@@ -304,16 +321,21 @@ class Viewport:
 
         bounds = [b for b in (box("start", start), box("reference", ref)) if b is not None]
         rec_box = box("recorded", rec)
+        if rec_box is not None and self._set_quads("rec_edges", box_quads(*rec_box)):
+            drawn.add("rec_edges")
+        else:
+            self._set("rec_edges", None)
         self._draw_passes(state, col, active, options, drawn, bounds)
         self._draw_lines(state, col, active, options, drawn)
         self._draw_others(state, col, options, drawn)
+        self.story = tell_story(self.session, state, col) if active else None
+        self._draw_story(self.story, drawn)
         vs = world.voxel_size
-        if active:
-            self._focus = np.asarray(start, np.float64)
-            if rec_box is not None and np.linalg.norm(np.asarray(rec) - start) <= options.cutaway_radius * vs:
-                bounds.append(rec_box)
-            lo = np.min([b[0] for b in bounds], axis=0)
-            hi = np.max([b[1] for b in bounds], axis=0)
+        if self.story is not None:
+            st = self.story
+            self._focus = st.centre
+            lo = np.min([st.lo] + [b[0] for b in bounds], axis=0)
+            hi = np.max([st.hi] + [b[1] for b in bounds], axis=0)
             self._interest = (lo, hi)
         elif self._focus is None:  # nothing to follow yet: look where the entity is nearest in time
             near = self.session.nearest_position(state.frame, col)
@@ -324,7 +346,11 @@ class Viewport:
         else:
             self._track()
             self._refresh_cutaway()
-        self.legend = [(_STYLE[r].label, _STYLE[r].rgb) for r in _ROLES if r in drawn]
+        if self.inset is not None:
+            self.inset.show(self.story if (self.story is not None and self.story.small) else None)
+            if self.inset.visible:
+                drawn.add("dimension")
+        self.legend = legend_of(drawn)
 
     def _world_centre(self):
         w = self.session.world
@@ -334,16 +360,35 @@ class Viewport:
         state, col = self._state, self._col
         if state is None or self._focus is None:
             return
-        targets = []
-        if state.active[col] and _finite(state.half[col]):
-            half = state.half[col] * 0.95  # corners pulled in so touching faces do not count
-            corners = np.array([[i, j, k] for i in (-1, 1) for j in (-1, 1) for k in (-1, 1)], np.float64)
-            for c in (state.start[col], state.rows.ref_end[col]):
-                if _finite(c):
-                    targets.append(c + corners * half)
-                    targets.append(np.asarray(c, np.float64)[None])
-        targets = np.concatenate(targets) if targets else np.zeros((0, 3))
-        self._update_voxels(self._focus, self._options.cutaway_radius, targets)
+        st = getattr(self, "story", None)
+        targets = st.targets if st is not None else np.zeros((0, 3))
+        radius = self._options.cutaway_radius
+        if st is not None:  # the world drawn covers the whole framed story, not a fixed disc
+            radius = max(radius, st.radius / self.session.world.voxel_size + 4.0)
+        self._update_voxels(self._focus, radius, targets)
+
+    def _draw_story(self, st, drawn):
+        """The kind's own geometry: crossed solid, overlap volume, previous end and the jump, the
+        straight recorded path, the arrow tip of the gap."""
+        vs = self.session.world.voxel_size
+        parts = {"crossed": None, "overlap": None, "previous": None, "path": None, "jump": None, "gap_tip": None}
+        if st is not None:
+            if len(st.crossed):
+                parts["crossed"] = box_quads(st.crossed[:, :3], st.crossed[:, 3:])
+                parts["path"] = np.stack([st.start, st.rec])
+            if len(st.overlap):
+                parts["overlap"] = box_quads(st.overlap[:, :3], st.overlap[:, 3:])
+            if st.prev_end is not None:
+                parts["previous"] = box_quads(st.prev_end - st.half, st.prev_end + st.half)
+                parts["jump"] = np.stack([st.prev_end, st.start])
+            if "gap" in drawn and st.gap_len > 0:
+                size = min(0.35 * st.gap_len, 0.06 * max(st.radius, vs))
+                parts["gap_tip"] = cone_quads(st.rec, st.gap / st.gap_len, size)
+        for role, geo in parts.items():
+            ok = (self._set(role, geo, lines=True) if _STYLE[role].representation == "lines"
+                  else self._set_quads(role, geo))
+            if ok:
+                drawn.add(role)
 
     def _draw_passes(self, state, col, active, options, drawn, bounds):
         rows = state.rows
@@ -423,15 +468,20 @@ class Viewport:
         return m / n if n > 1e-9 else None
 
     def set_camera(self, preset: str) -> None:
-        """Point the camera: "follow" (three-quarter view from above and behind), "motion" (look
+        """Point the camera: "story" (the direction that sees the divergence's gap, see
+        :func:`.story.choose_view`; "follow" when nothing is focused), "follow" (three-quarter view
+        from above and behind), "motion" (look
         along the motion), "top" (down the up axis), "side" (across the motion); then frame the
-        focused entity's boxes and swept volumes."""
+        focused story (start, both ends, hit faces and the kind's geometry)."""
         if preset not in PRESETS:
             raise ValueError(f"camera preset must be one of {', '.join(PRESETS)}, got {preset!r}")
         self._preset = preset
         up, h1, h2 = self._axes_frame()
         view_up = up
-        if preset == "follow":
+        st = getattr(self, "story", None)
+        if preset == "story" and st is not None:
+            to_cam = st.view_dir
+        elif preset in ("story", "follow"):
             back = self._motion_dir(True)
             back = -back if back is not None else -h2
             side = np.cross(up, back)
@@ -451,8 +501,9 @@ class Viewport:
         to_cam = to_cam / np.linalg.norm(to_cam)
         lo, hi = self._interest if self._interest is not None else (np.zeros(3), np.ones(3))
         centre = (lo + hi) / 2
-        r = max(np.linalg.norm(hi - lo) / 2, 2.5 * (self.session.world.voxel_size if self.session else 1.0))
-        dist = r / np.sin(np.radians(_VIEW_ANGLE / 2)) * 1.05
+        vs = self.session.world.voxel_size if self.session else 1.0
+        pad = 1.5 * vs  # a voxel and a half of context around the story
+        dist = frame_distance(lo - pad, hi + pad, to_cam, view_up, self._aspect())
         cam = self.plotter.camera
         cam.focal_point = tuple(centre)
         cam.position = tuple(centre + to_cam * dist)
@@ -461,6 +512,12 @@ class Viewport:
         self._camera_ready = True
         self._refresh_cutaway()
         self.plotter.renderer.ResetCameraClippingRange()
+
+    def _aspect(self) -> float:
+        """Width / height of the main view in pixels."""
+        w, h = self.plotter.render_window.GetSize()
+        x0, y0, x1, y1 = self.plotter.renderer.GetViewport()
+        return max(1e-3, (x1 - x0) * max(w, 1)) / max(1e-3, (y1 - y0) * max(h, 1))
 
     def _track(self):
         """Move the camera with the focus, keeping its direction and distance."""
@@ -490,6 +547,37 @@ class Viewport:
         dx, dy, _ = ren.GetDisplayPoint()
         h = self.plotter.render_window.GetSize()[1]
         return float(dx), float(h - dy)
+
+
+def frame_distance(lo, hi, to_cam, view_up, aspect: float) -> float:
+    """Camera distance from the centre of box [lo, hi] (float (3,)) along unit ``to_cam`` at which
+    the whole box fits a perspective view of vertical angle _VIEW_ANGLE and ``aspect`` (w / h)."""
+    lo, hi = np.asarray(lo, np.float64), np.asarray(hi, np.float64)
+    c = (lo + hi) / 2
+    back = np.asarray(to_cam, np.float64)
+    up = np.asarray(view_up, np.float64) - (np.asarray(view_up, np.float64) @ back) * back
+    if np.linalg.norm(up) < 1e-9:
+        up = np.roll(back, 1)
+        up -= (up @ back) * back
+    up /= np.linalg.norm(up)
+    right = np.cross(back, up)
+    corners = np.array([[a, b, d] for a in (0, 1) for b in (0, 1) for d in (0, 1)], np.float64)
+    pts = lo + corners * (hi - lo) - c
+    t = np.tan(np.radians(_VIEW_ANGLE / 2))
+    # each corner at depth z toward the camera needs dist - z >= |u| / t (and |r| / (t * aspect))
+    need = np.maximum(np.abs(pts @ up) / t, np.abs(pts @ right) / (t * aspect)) + pts @ back
+    return float(max(need.max(), 1e-6)) * 1.04
+
+
+def legend_of(roles) -> list[tuple[str, tuple]]:
+    """One (label, rgb) per label among ``roles`` drawn (outlines share their fill's entry), in role order."""
+    out, seen = [], set()
+    for r in _ROLES + ("dimension",):
+        st = S.DIMENSION if r == "dimension" else _STYLE[r]
+        if r in roles and st.label not in seen:
+            seen.add(st.label)
+            out.append((st.label, st.rgb))
+    return out
 
 
 def _one_face():

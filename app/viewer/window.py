@@ -53,7 +53,7 @@ class MainWindow(QMainWindow):
         self.worker = TraceWorker(session_factory or default_session_factory, self)
         self._pending: dict = {}
         self._solved_upto = 0
-        self._camera = "follow"
+        self._camera = "story"
         self.plotter = None
         self.viewport = None
         self.view_options = None
@@ -94,6 +94,7 @@ class MainWindow(QMainWindow):
             self._key_guard = _SwallowKeys(self.plotter)
             self.plotter.installEventFilter(self._key_guard)
             self.viewport = Viewport(self.plotter)
+            self.viewport.enable_inset()
             self.view_options = ViewOptions()
             lay.addWidget(self.plotter, 1)
         else:
@@ -182,7 +183,7 @@ class MainWindow(QMainWindow):
         A(e, "Previous entity", lambda: self.cycle_entity(-1), ["Shift+E"], "Entity")
         A(e, "Focus camera on entity", self.focus_camera, ["F"], "Entity")
         v = m.addMenu("&View")
-        for key, preset in (("1", "follow"), ("2", "motion"), ("3", "top"), ("4", "side")):
+        for key, preset in (("1", "follow"), ("2", "motion"), ("3", "top"), ("4", "side"), ("5", "story")):
             A(v, f"Camera: {preset}", lambda _=False, pr=preset: self.set_camera(pr), [key], "View")
         A(v, "Fit the whole world", self.fit, ["0"], "View")
         v.addSeparator()
@@ -352,7 +353,7 @@ class MainWindow(QMainWindow):
             self.viewport.fit()
 
     def focus_camera(self):
-        self.set_camera("follow")
+        self.set_camera("story")
 
     def cycle_entity(self, step: int):
         n = self.pb.entity_count
@@ -381,7 +382,8 @@ class MainWindow(QMainWindow):
             rows = np.frombuffer(ptr, np.uint8).reshape(img.height(), img.bytesPerLine())
             view = np.ascontiguousarray(rows[:, : 3 * img.width()].reshape(img.height(), img.width(), 3))
         have = self.state is not None and self.pb.focus is not None
-        lines = caption_lines(self.session, self.state, self.pb.focus) if have else []
+        story = self.viewport.story if self.viewport is not None else None
+        lines = caption_lines(self.session, self.state, self.pb.focus, story) if have else []
         legend = self.viewport.legend if self.viewport is not None else []
         out = np.ascontiguousarray(compose(view, lines, legend))
         h, w = out.shape[:2]
