@@ -29,7 +29,7 @@ def caption_lines(session, state, col: int, story=None) -> list[str]:
     the kind told in words (its label from the kinds table) with its error in world units and
     voxels and the error's axis, other kinds of the row; the kind's meaning; the solver settings.
     ``story``: the :class:`~resweep.app.scene.story.Story` drawn (made here when None)."""
-    from resweep.app.scene.story import AXES, tell_story
+    from resweep.app.scene.story import axis_words, tell_story
     tr = session.trace
     last = tr.frame_count - 1
     lines = [f"{session.name}   frame {state.frame} of 0..{last}   t = {state.time:.3f} s"]
@@ -56,7 +56,7 @@ def caption_lines(session, state, col: int, story=None) -> list[str]:
     if story.error is not None:
         axis = ""
         if story.dim is not None:
-            axis = f" along {AXES[int(np.argmax(np.abs(np.subtract(story.dim[1], story.dim[0]))))]}"
+            axis = " " + axis_words(np.subtract(story.dim[1], story.dim[0]))
         text += f": {story.error:.4g} world units = {story.error / vs:.4g} voxels{axis}"
     if story.kind == "invalid":
         text += ": " + invalid_fields(state, col)

@@ -13,7 +13,7 @@ import pyvista as pv
 from vtkmodules.vtkRenderingCore import vtkBillboardTextActor3D, vtkRenderer, vtkTextActor
 
 from resweep.app.scene import style as S
-from resweep.app.scene.story import AXES, inset_radius
+from resweep.app.scene.story import axis_words, inset_radius
 
 SPLIT = 0.6  # fraction of the window width the main view keeps while the magnified view shows
 
@@ -22,11 +22,10 @@ def dimension_text(story, voxel_size: float) -> str:
     """The label of the dimension line: length with its axis, world units and voxels."""
     p, q = (np.asarray(v, np.float64) for v in story.dim)
     d = q - p
-    ax = int(np.argmax(np.abs(d)))
     what = "depth" if story.kind in ("penetration", "start_overlap") else (
         "jump" if story.kind == "discontinuity" else "gap")
     n = float(np.linalg.norm(d))
-    return f"{what} along {AXES[ax]}: {n:.4g} world units\n= {n / voxel_size:.4g} voxels"
+    return f"{what} {n:.4g} world units = {n / voxel_size:.4g} voxels\n{axis_words(d)}"
 
 
 class MagnifiedView:
@@ -38,10 +37,10 @@ class MagnifiedView:
         text: the dimension label of the last shown view.
     """
 
-    def __init__(self, plotter, main_overlay, actors: dict, over_roles, voxel_size_of):
+    def __init__(self, plotter, main_layers, actors: dict, over_roles, top_roles, voxel_size_of):
         self.plotter = plotter
         self.main = plotter.renderer
-        self.main_overlay = main_overlay
+        self.main_layers = main_layers
         self.voxel_size_of = voxel_size_of
         self.visible = False
         self.factor = 1.0
@@ -57,13 +56,13 @@ class MagnifiedView:
         self.over.SetLayer(1)
         self.over.InteractiveOff()
         self.over.SetActiveCamera(self.ren.GetActiveCamera())
-        for role, actor in actors.items():
-            (self.over if role in over_roles else self.ren).AddActor(actor)
-        # Dimension and texts in a layer of their own, over the outlines and the overlap volume.
+        # Key outlines, the dimension and texts in the top layer, over the overlap volume.
         self.top = vtkRenderer()
         self.top.SetLayer(2)
         self.top.InteractiveOff()
         self.top.SetActiveCamera(self.ren.GetActiveCamera())
+        for role, actor in actors.items():
+            (self.over if role in over_roles else self.top if role in top_roles else self.ren).AddActor(actor)
         self.dim_mesh = pv.PolyData(np.zeros((2, 3)), lines=[2, 0, 1])
         mapper = pv.DataSetMapper(self.dim_mesh)
         self.dim_actor = pv.Actor(mapper=mapper)
@@ -95,7 +94,8 @@ class MagnifiedView:
         rw = self.plotter.render_window
         right = SPLIT if on else 1.0
         self.main.SetViewport(0.0, 0.0, right, 1.0)
-        self.main_overlay.SetViewport(0.0, 0.0, right, 1.0)
+        for ren in self.main_layers:
+            ren.SetViewport(0.0, 0.0, right, 1.0)
         have = rw.GetRenderers().IsItemPresent(self.ren)
         if on and not have:
             self.ren.SetViewport(SPLIT, 0.0, 1.0, 1.0)

@@ -40,6 +40,7 @@ class Story:
         small: the gap (or overlap depth) is small next to the box: draw the magnified view.
         dim: ((3,), (3,)) ends of the dimension line of the magnified view, or None.
         view_dir: (3,) unit vector from the framed centre toward the camera.
+        normals: float (3,) hit normals of the reference passes (out of the hit faces).
     """
 
     kind: str | None
@@ -61,6 +62,7 @@ class Story:
     small: bool = False
     dim: tuple | None = None
     view_dir: np.ndarray = field(default_factory=lambda: np.array([0.0, 1.0, 0.0]))
+    normals: list = field(default_factory=list)
 
     @property
     def centre(self) -> np.ndarray:
@@ -81,6 +83,19 @@ def inset_radius(story: Story) -> float:
         return 1.0
     d = float(np.linalg.norm(np.subtract(story.dim[1], story.dim[0])))
     return max(3.0 * d, 1e-6)
+
+
+def axis_words(d) -> str:
+    """"along x" for a vector (3,) on one axis; "mostly along x (x -0.04, z -0.03)" otherwise."""
+    d = np.asarray(d, np.float64)
+    n = float(np.linalg.norm(d))
+    if n == 0:
+        return ""
+    ax = int(np.argmax(np.abs(d)))
+    parts = [f"{AXES[i]} {d[i]:+.3g}" for i in range(3) if abs(d[i]) > 0.01 * n]
+    if len(parts) == 1:
+        return f"along {AXES[ax]}"
+    return f"mostly along {AXES[ax]} ({', '.join(parts)})"
 
 
 def _fin(v) -> bool:
@@ -188,6 +203,8 @@ def tell_story(session, state, col: int) -> Story | None:
     solid = solid_boxes(world, lo - vs, hi + vs)
     story = Story(kind, kinds, err, start, ref, rec, half, gap, gap_len, axis, lo, hi, np.zeros((0, 3)),
                   prev_end=prev_end)
+    story.normals = [np.asarray(rows.normal[col, k], np.float64) for k in range(int(rows.npass[col]))
+                     if int(rows.block[col, k]) >= 0]
     if "tunneling" in kinds and _fin(rec):
         story.crossed = crossed_boxes(solid, start, rec, half)
     for k, box_c in (("penetration", rec), ("start_overlap", start)):
@@ -257,9 +274,7 @@ def _dimension(story: Story, tol: float) -> None:
     s = np.sign(story.gap[ax])
     p = story.ref.copy()
     p[ax] += s * story.half[ax]  # the reference box's face the recorded box moved past or fell short of
-    q = p.copy()
-    q[ax] += story.gap[ax]
-    story.dim = (p, q)
+    story.dim = (p, p + story.gap)
     story.small = bool(story.gap_len < SMALL_FRACTION * size)
 
 
@@ -287,6 +302,8 @@ def choose_view(story: Story, motion, up: int, solid: np.ndarray) -> np.ndarray:
             if mn > 0:
                 score += 0.5 * np.linalg.norm(np.cross(d, motion / mn)) - 0.15 * (d @ motion) / mn
             score -= 0.1 * abs(elev - 40.0) / 45.0
+            for nrm in story.normals:  # see the hit faces from their front
+                score += 0.12 * float(d @ nrm) / max(1, len(story.normals))
             if len(solid) and keys:
                 blocked = sum(_blocked(solid, p, p + d * reach, story.half) for p in keys)
                 score -= 0.6 * blocked / len(keys)

@@ -30,7 +30,9 @@ _STYLE = {"start": S.START, "recorded": S.RECORDED, "reference": S.REFERENCE, "s
           "crossed": S.CROSSED, "path": S.PATH, "overlap": S.OVERLAP, "previous": S.PREVIOUS, "jump": S.JUMP}
 #: Roles drawn in the layer over the scene: the story's key outlines stay in sight even where a
 #: translucent surface or a sliver of solid lies in front of them.
-_OVER = ("rec_edges", "hit_edges", "gap", "gap_tip", "crossed", "overlap", "jump", "reference")  # reference last: on top
+_OVER = ("crossed", "overlap", "jump", "gap", "gap_tip")
+#: The story's key outlines, in a layer above those (a hit face on a crossed voxel stays seen).
+_TOP = ("rec_edges", "hit_edges", "reference")
 _VIEW_ANGLE = 30.0  # degrees, the pyvista default
 CHUNK_VARIANTS = 256  # chunk meshes kept, current and earlier contents (a few MB for 16^3 chunks)
 
@@ -141,9 +143,16 @@ class Viewport:
         rw = p.render_window
         rw.SetNumberOfLayers(max(2, rw.GetNumberOfLayers()))
         rw.AddRenderer(self._overlay)
-        for role in _OVER:
+        self._top = vtkRenderer()
+        self._top.SetLayer(2)
+        self._top.InteractiveOff()
+        self._top.SetActiveCamera(p.renderer.GetActiveCamera())
+        self._top.SetViewport(p.renderer.GetViewport())
+        rw.SetNumberOfLayers(max(3, rw.GetNumberOfLayers()))
+        rw.AddRenderer(self._top)
+        for role in _OVER + _TOP:
             vtkRenderer.RemoveActor(p.renderer, self._actors[role])
-            self._overlay.AddActor(self._actors[role])
+            (self._overlay if role in _OVER else self._top).AddActor(self._actors[role])
         self._actors["voxels"].SetVisibility(False)
 
     def _put(self, role: str, mesh) -> bool:
@@ -195,8 +204,9 @@ class Viewport:
         """Make the magnified second view (shown beside the main view for small errors)."""
         if self.inset is None:
             from resweep.app.scene.inset import MagnifiedView
-            shared = {r: a for r, a in self._actors.items() if r in ("voxels", "start", "recorded", "hit") + _OVER}
-            self.inset = MagnifiedView(self.plotter, self._overlay, shared, _OVER,
+            shared = {r: a for r, a in self._actors.items()
+                      if r in ("voxels", "start", "recorded", "hit") + _OVER + _TOP}
+            self.inset = MagnifiedView(self.plotter, (self._overlay, self._top), shared, _OVER, _TOP,
                                        lambda: self.session.world.voxel_size if self.session else 1.0)
 
     # -- session ---------------------------------------------------------------------------------
@@ -414,7 +424,7 @@ class Viewport:
                 f, arr = contact_quads(rows.voxel[col, k], rows.normal[col, k], boxes, b, half, skin, vs)
                 hits.append(f)
                 arrows.append(arr)
-        for role, parts in (("swept", swept), ("hit", hits), ("normal", arrows)):
+        for role, parts in (("swept", swept), ("hit", hits), ("hit_edges", hits), ("normal", arrows)):
             if self._set_quads(role, np.concatenate(parts) if parts else None):
                 drawn.add(role)
         path = pts[: n + 1] if n else np.zeros((0, 3))
