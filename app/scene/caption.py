@@ -55,16 +55,21 @@ def caption_lines(session, state, col: int, story=None) -> list[str]:
     text = f"{kind.label.upper()} ({kind.name}, {kind.severity})"
     if story.error is not None:
         axis = ""
-        if story.dim is not None:
+        measured = story.dim is not None and np.isclose(np.linalg.norm(np.subtract(*story.dim)), story.error,
+                                                         rtol=0.01)
+        if measured:  # the error is the length the picture measures: give its axis
             axis = " " + axis_words(np.subtract(story.dim[1], story.dim[0]))
         text += f": {story.error:.4g} world units = {story.error / vs:.4g} voxels{axis}"
+        if story.axis >= 0 and not np.isclose(story.gap_len, story.error, rtol=0.01):
+            text += (f"; recorded end {story.gap_len:.4g} world units = {story.gap_len / vs:.4g} voxels from "
+                     f"the reference end, {axis_words(story.gap)}")
     if story.kind == "invalid":
         text += ": " + invalid_fields(state, col)
     others = [k for k in story.kinds if k != story.kind]
     if others:
         errs = state.errors(col)
         text += "; also " + ", ".join(k + ("" if errs[k] is None else f" {errs[k]:.4g}") for k in others)
-    lines.append(text)
+    lines += textwrap.wrap(text, 96)
     lines += textwrap.wrap("what it means: " + kind.meaning, 96)
     return lines + [settings_line(session.settings)]
 

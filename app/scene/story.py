@@ -251,7 +251,9 @@ def _dimension(story: Story, tol: float) -> None:
     overlap depth for penetration and start overlap, the jump for a discontinuity, else the gap
     between the reference and recorded ends along its main axis."""
     size = float(np.min(2 * story.half))
-    if story.kind in ("penetration", "start_overlap") and len(story.overlap):
+    deep = story.overlap[:, 3:] - story.overlap[:, :3] if len(story.overlap) else np.zeros((0, 3))
+    fell = story.kind == "penetration" and story.axis >= 0 and story.gap_len > float(deep.max(initial=0.0))
+    if story.kind in ("penetration", "start_overlap") and len(story.overlap) and not fell:
         ov = story.overlap
         vol = np.prod(ov[:, 3:] - ov[:, :3], axis=1)
         b = ov[int(np.argmax(vol))]
