@@ -147,6 +147,9 @@ class MagnifiedView:
         pts = np.array([p, q, p - tick, p + tick, q - tick, q + tick])
         self.dim_mesh.points = pts
         self.dim_mesh.lines = np.array([2, 0, 1, 2, 2, 3, 2, 4, 5])
+        fs = int(np.clip(round(self.plotter.render_window.GetSize()[1] * 0.028), 9, 22))
+        for actor in (self.label, self.title):
+            actor.GetTextProperty().SetFontSize(fs)
         self.text = dimension_text(story, vs)
         self.label.SetInput(self.text)
         self.label.SetPosition(*(mid - up * 0.55 * r))  # below the line, clear of its ticks

@@ -82,6 +82,7 @@ class Viewport:
         self._preset = "story"
         self.story = None           # Story of the focused column (scene/story.py)
         self.inset = None           # MagnifiedView, made by enable_inset()
+        self.locked_dir = None      # float (3,): the "story" preset keeps this direction (animations)
         self._camera_ready = False
         self._focus = None          # float (3,) world point the camera tracks
         self._interest = None       # (lo, hi) bounds of the focused entity's geometry
@@ -490,7 +491,7 @@ class Viewport:
         view_up = up
         st = getattr(self, "story", None)
         if preset == "story" and st is not None:
-            to_cam = st.view_dir
+            to_cam = self.locked_dir if self.locked_dir is not None else st.view_dir
         elif preset in ("story", "follow"):
             back = self._motion_dir(True)
             back = -back if back is not None else -h2
@@ -541,6 +542,42 @@ class Viewport:
                 cam.focal_point = tuple(np.asarray(cam.focal_point) + delta)
         self._tracked = self._focus.copy()
         self.plotter.renderer.ResetCameraClippingRange()
+
+    def turn(self, degrees: float) -> None:
+        """Turntable: orbit the camera ``degrees`` about the up axis through the focused story's
+        centre; the horizon stays level (view up = the trace's up axis)."""
+        up = self._axes_frame()[0]
+        cam = self.plotter.camera
+        centre = (self._interest[0] + self._interest[1]) / 2 if self._interest is not None else \
+            np.asarray(cam.focal_point, np.float64)
+        a = np.radians(degrees)
+        k = up
+        def rot(v):  # Rodrigues' rotation about unit k (common practice)
+            return v * np.cos(a) + np.cross(k, v) * np.sin(a) + k * (k @ v) * (1 - np.cos(a))
+        cam.position = tuple(centre + rot(np.asarray(cam.position, np.float64) - centre))
+        cam.focal_point = tuple(centre + rot(np.asarray(cam.focal_point, np.float64) - centre))
+        cam.up = tuple(up)
+        self._tracked = None if self._focus is None else self._focus.copy()
+        self._refresh_cutaway()
+        self.plotter.renderer.ResetCameraClippingRange()
+
+    def zoom(self, factor: float) -> None:
+        """Move the camera toward its focal point (``factor`` > 1 nearer), keeping its direction."""
+        cam = self.plotter.camera
+        f = np.asarray(cam.focal_point, np.float64)
+        cam.position = tuple(f + (np.asarray(cam.position, np.float64) - f) / float(factor))
+        self._refresh_cutaway()
+        self.plotter.renderer.ResetCameraClippingRange()
+
+    def pick(self, x: float, y: float):
+        """World point (float64 (3,)) of the surface drawn at window pixel (x right, y down), or None."""
+        from vtkmodules.vtkRenderingCore import vtkCellPicker
+        picker = vtkCellPicker()
+        picker.SetTolerance(0.0005)
+        h = self.plotter.render_window.GetSize()[1]
+        if not picker.Pick(float(x), float(h - 1 - y), 0.0, self.plotter.renderer):
+            return None
+        return np.asarray(picker.GetPickPosition(), np.float64)
 
     def fit(self) -> None:
         """Keep the view direction and frame everything drawn (voxels included)."""
