@@ -23,7 +23,7 @@ def num(v: float, decimals: int = DECIMALS) -> str:
     """Fixed-point text for one value; NaN and infinities spelled out."""
     v = float(v)
     if np.isnan(v):
-        return "n/a"
+        return "NaN"
     if np.isinf(v):
         return "inf" if v > 0 else "-inf"
     text = f"{v:.{decimals}f}"

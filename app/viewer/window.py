@@ -23,6 +23,7 @@ from resweep.app.viewer.panels import EntitiesPanel, FramePanel, SettingsPanel
 from resweep.app.viewer.playback import Playback
 from resweep.app.viewer.report_md import frame_facts, report_markdown, snapshot_command
 from resweep.app.viewer.flags import TraceFlags
+from resweep.app.viewer.hunt import HuntTools
 from resweep.app.viewer.timeline import ACCENT, GROOVE, INK, PANEL, Timeline, draw_icon
 from resweep.app.viewer.worker import TraceWorker, error_line
 
@@ -61,6 +62,7 @@ class MainWindow(QMainWindow):
         self._build_docks()
         self._build_status()
         self._build_actions()
+        self.hunt = HuntTools(self)  # go to, bookmarks, measuring, turntable, animation export
         self.pb.subscribe(self._on_playback)
         self.worker.loaded.connect(self._adopt)
         self.worker.load_failed.connect(self._load_failed)
@@ -418,7 +420,7 @@ class MainWindow(QMainWindow):
         col = self.pb.focus
         facts = frame_facts(self.session, self.state, col) if col is not None else None
         return report_markdown(facts, self.session.path, self.state.frame, self.state.time, self.pb.settings,
-                               self.session.trace.title)
+                               self.session.trace.title) + self.hunt.report_section()
 
     def copy_report(self):
         text = self.report()
