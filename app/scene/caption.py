@@ -121,7 +121,9 @@ def band_layout(width: int, height: int, lines: list[str], legend=()) -> BandLay
     n = len(lines)
     rows_beside = max(n, len(_legend_rows(base, width, beside, legend)))
     rows_below = n + len(_legend_rows(base, width, pad, legend))
-    x, row0, rows = (beside, 0, rows_beside) if rows_beside <= rows_below else (pad, n, rows_below)
+    widest = max((w for row in _legend_rows(base, width, pad, legend) for _, _, w in row), default=0)
+    fits_beside = beside + widest <= width - pad  # an entry wider than the room beside would be cut
+    x, row0, rows = (beside, 0, rows_beside) if rows_beside <= rows_below and fits_beside else (pad, n, rows_below)
     return BandLayout(fs, pad, line_h, min(height // 2, 2 * pad + rows * line_h), x, row0)
 
 

@@ -72,6 +72,14 @@ class Story:
     def radius(self) -> float:
         return float(np.linalg.norm(self.hi - self.lo) / 2)
 
+    def segments(self) -> np.ndarray:
+        """float64 (k, 2, 3): the lines the world is drawn around: start to each end (the hit
+        faces lie on the way to the reference end) and the jump from the previous end."""
+        segs = [(self.start, c) for c in (self.ref, self.rec) if _fin(c)]
+        if self.prev_end is not None:
+            segs.append((self.prev_end, self.start))
+        return np.asarray(segs or [(self.start, self.start)], np.float64)
+
     def magnification(self, main_radius: float) -> float:
         """How much the second view enlarges next to a main view framing ``main_radius``."""
         return max(1.0, main_radius / inset_radius(self))
@@ -119,7 +127,7 @@ def solid_boxes(world, lo, hi) -> np.ndarray:
     vhi = np.floor(np.asarray(hi, np.float64) / vs).astype(np.int64) + 1
     if np.prod(np.maximum(vhi - vlo + 1, 0).astype(np.float64)) > 64 * MAX_CELLS:
         return np.zeros((0, 6))
-    out = []
+    out: list = []
     origin = world.chunk_origin
     hit = np.flatnonzero(((origin + S) > vlo).all(axis=1) & (origin <= vhi).all(axis=1))
     shapes = world.shapes
@@ -128,14 +136,16 @@ def solid_boxes(world, lo, hi) -> np.ndarray:
         a = np.maximum(vlo - o, 0)
         b = np.minimum(vhi - o + 1, S)
         sub = world.blocks[c, a[0]:b[0], a[1]:b[1], a[2]:b[2]]
-        idx = np.argwhere(sub != 0)
-        for (i, j, k) in idx[:MAX_CELLS]:
-            t = int(sub[i, j, k])
-            v = o + a + (i, j, k)
-            boxes = shapes.boxes_of(t) if t < shapes.count else np.array([[0, 0, 0, 1, 1, 1.0]])
-            for bx in boxes:
-                out.append(np.concatenate([(v + bx[:3]) * vs, (v + bx[3:]) * vs]))
-    return np.asarray(out, np.float64).reshape(-1, 6)
+        for t in np.unique(sub):
+            if t == 0:
+                continue
+            v = (np.argwhere(sub == t)[:MAX_CELLS] + o + a).astype(np.float64)
+            boxes = shapes.boxes_of(int(t)) if t < shapes.count else np.array([[0, 0, 0, 1, 1, 1.0]])
+            for bx in boxes:  # one row per (cell, box of its type), vectorised over cells
+                out.append(np.concatenate([(v + bx[:3]) * vs, (v + bx[3:]) * vs], axis=1))
+    if not out:
+        return np.zeros((0, 6))
+    return np.concatenate(out)
 
 
 def overlap_boxes(solid: np.ndarray, lo, hi, min_depth: float = 0.0) -> np.ndarray:
@@ -216,7 +226,9 @@ def tell_story(session, state, col: int) -> Story | None:
     if len(story.overlap):
         tg.append((story.overlap[:, :3] + story.overlap[:, 3:]) / 2)
     story.targets = np.concatenate(tg)
-    view_solid = solid_boxes(world, lo - min(story.radius, 8 * vs), hi + min(story.radius, 8 * vs))
+    # Occluders that matter are near the key points: look 8 voxels around each (fast for far pairs).
+    near = [solid_boxes(world, c - half - 8 * vs, c + half + 8 * vs) for c in centres]
+    view_solid = np.unique(np.concatenate(near), axis=0) if near else np.zeros((0, 6))
     story.view_dir = choose_view(story, _motion(state, col), "xyz".index(session.trace.up_axis), view_solid)
     return story
 

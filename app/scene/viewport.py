@@ -34,6 +34,7 @@ _OVER = ("crossed", "overlap", "jump", "gap", "gap_tip")
 #: The story's key outlines, in a layer above those (a hit face on a crossed voxel stays seen).
 _TOP = ("rec_edges", "hit_edges", "reference")
 _VIEW_ANGLE = 30.0  # degrees, the pyvista default
+WHOLE_WORLD_MAX = 256.0  # voxels: "fit" draws the world up to this far from its centre
 CHUNK_VARIANTS = 256  # chunk meshes kept, current and earlier contents (a few MB for 16^3 chunks)
 
 
@@ -83,6 +84,7 @@ class Viewport:
         self.story = None           # Story of the focused column (scene/story.py)
         self.inset = None           # MagnifiedView, made by enable_inset()
         self.locked_dir = None      # float (3,): the "story" preset keeps this direction (animations)
+        self.whole_world = False    # fit(): draw the whole world (up to WHOLE_WORLD_MAX voxels out)
         self._camera_ready = False
         self._focus = None          # float (3,) world point the camera tracks
         self._interest = None       # (lo, hi) bounds of the focused entity's geometry
@@ -260,22 +262,26 @@ class Viewport:
         self._chunks[c] = entry
         return entry
 
-    def _near_chunks(self, centre, radius: float) -> np.ndarray:
+    def _near_chunks(self, segs, radius: float) -> np.ndarray:
+        """Chunks with a part within ``radius`` of one of float (k, 2, 3) segments (only these are
+        meshed: a far-apart pair loads the chunks along its path, not a ball around both)."""
         w = self.session.world
         vs = w.voxel_size
-        lo = w.chunk_origin * vs
-        hi = (w.chunk_origin + w.chunk_size) * vs
-        nearest = np.clip(centre, lo, hi)
-        return np.flatnonzero(((nearest - centre) ** 2).sum(axis=1) <= (radius + vs) ** 2)
+        half = 0.5 * w.chunk_size * vs
+        centre = (w.chunk_origin * vs) + half
+        reach = radius + vs + half * np.sqrt(3.0)
+        return np.flatnonzero(seg_distance(centre, segs) <= reach)
 
-    def _update_voxels(self, focus, radius_vox: float, targets):
-        """Cut-away: faces of voxels within ``radius_vox`` voxels of ``focus``, minus the voxels
-        that block the line of sight from the camera to any of ``targets`` (float (k, 3), e.g. the
-        corners of the focused boxes), so walls and floors never hide them."""
+    def _update_voxels(self, focus, radius_vox: float, targets, segs=None):
+        """Cut-away: faces of voxels within ``radius_vox`` voxels of the ``segs`` (float (k, 2, 3);
+        default the point ``focus``), minus the voxels that block the line of sight from the camera
+        to any of ``targets`` (float (k, 3), e.g. the corners of the focused boxes), so walls and
+        floors never hide them."""
         w = self.session.world
         vs = w.voxel_size
         radius = radius_vox * vs
-        near = self._near_chunks(focus, radius)
+        segs = np.asarray([[focus, focus]] if segs is None else segs, np.float64).reshape(-1, 2, 3)
+        near = self._near_chunks(segs, radius)
         entries = [self._chunk(int(c)) for c in near]
         key = tuple(e[3] for e in entries)
         if key != self._merged_key:
@@ -286,15 +292,15 @@ class Viewport:
         # Redo the mask only when the focus moved by a voxel or the camera by a tenth of its
         # distance: finer moves change which voxels block the sight by at most a sliver.
         dist = max(np.linalg.norm(cam - focus), vs)
-        cut = (key, radius, np.round(focus / vs), cam, dist, len(targets))
+        cut = (key, radius, np.round(segs / vs).tobytes(), cam, dist, len(targets))
         old = self._cut_key
-        if (old is not None and old[:2] == cut[:2] and (np.abs(old[2] - cut[2]) <= 1).all()
+        if (old is not None and old[:3] == cut[:3]
                 and np.linalg.norm(old[3] - cam) < 0.1 * old[4] and old[5] == cut[5]):
             return
         self._cut_key = cut
         f = self._merged
         centre = f.centre.astype(np.float64)
-        keep = ((centre - focus) ** 2).sum(axis=1) <= radius ** 2
+        keep = seg_distance(centre, segs) <= radius
         if len(targets):
             cells, inv = np.unique(centre[keep], axis=0, return_inverse=True)
             blocked = blocks_sight(cells, 0.5 * vs - 0.02 * vs, cam, np.asarray(targets, np.float64))
@@ -374,9 +380,14 @@ class Viewport:
         st = getattr(self, "story", None)
         targets = st.targets if st is not None else np.zeros((0, 3))
         radius = self._options.cutaway_radius
-        if st is not None:  # the world drawn covers the whole framed story, not a fixed disc
-            radius = max(radius, st.radius / self.session.world.voxel_size + 4.0)
-        self._update_voxels(self._focus, radius, targets)
+        if self.whole_world:
+            w = self.session.world
+            self._update_voxels((w.lo + w.hi) / 2.0 * w.voxel_size, min(WHOLE_WORLD_MAX, float(
+                np.linalg.norm(w.hi - w.lo)) / 2 + 1), targets)
+        elif st is not None:  # the world drawn follows the whole story (start, both ends, jump)
+            self._update_voxels(self._focus, radius, targets, st.segments())
+        else:
+            self._update_voxels(self._focus, radius, targets)
 
     def _draw_story(self, st, drawn):
         """The kind's own geometry: crossed solid, overlap volume, previous end and the jump, the
@@ -484,6 +495,7 @@ class Viewport:
         from above and behind), "motion" (look
         along the motion), "top" (down the up axis), "side" (across the motion); then frame the
         focused story (start, both ends, hit faces and the kind's geometry)."""
+        self.whole_world = False
         if preset not in PRESETS:
             raise ValueError(f"camera preset must be one of {', '.join(PRESETS)}, got {preset!r}")
         self._preset = preset
@@ -580,7 +592,10 @@ class Viewport:
         return np.asarray(picker.GetPickPosition(), np.float64)
 
     def fit(self) -> None:
-        """Keep the view direction and frame everything drawn (voxels included)."""
+        """Keep the view direction, draw the whole world (up to WHOLE_WORLD_MAX voxels from its
+        centre) and frame everything drawn. The next camera preset goes back to the story."""
+        self.whole_world = True
+        self._refresh_cutaway()
         self.plotter.reset_camera()
         self._refresh_cutaway()
         self.plotter.renderer.ResetCameraClippingRange()
@@ -594,6 +609,19 @@ class Viewport:
         dx, dy, _ = ren.GetDisplayPoint()
         h = self.plotter.render_window.GetSize()[1]
         return float(dx), float(h - dy)
+
+
+def seg_distance(points, segs) -> np.ndarray:
+    """float64 (n,) distance from each of float (n, 3) ``points`` to the nearest of float (k, 2, 3)
+    segments (a zero-length segment is a point)."""
+    p = np.asarray(points, np.float64)
+    out = np.full(len(p), np.inf)
+    for a, b in np.asarray(segs, np.float64).reshape(-1, 2, 3):
+        d = b - a
+        dd = float(d @ d)
+        t = np.clip(((p - a) @ d) / dd, 0.0, 1.0) if dd > 0 else np.zeros(len(p))
+        out = np.minimum(out, np.linalg.norm(p - (a + t[:, None] * d), axis=1))
+    return out
 
 
 def frame_distance(lo, hi, to_cam, view_up, aspect: float) -> float:
