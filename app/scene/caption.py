@@ -113,7 +113,7 @@ def band_layout(width: int, height: int, lines: list[str], legend=()) -> BandLay
     """Layout of the band for a picture of ``width`` x ``height`` pixels (the band's share of the
     height included); the band takes at most half the picture. The legend goes right of the
     text, or below it when that makes the band lower."""
-    fs = int(np.clip(round(height * 0.03), 10, 30))
+    fs = int(np.clip(round(min(height * 0.03, width * 0.018)), 10, 30))  # tall narrow views too
     pad = max(3, fs // 2)
     line_h = int(round(fs * 1.3))
     base = BandLayout(fs, pad, line_h, 0)

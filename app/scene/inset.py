@@ -25,7 +25,7 @@ def dimension_text(story, voxel_size: float) -> str:
     what = "depth" if story.kind in ("penetration", "start_overlap") else (
         "jump" if story.kind == "discontinuity" else "gap")
     n = float(np.linalg.norm(d))
-    return f"{what} {n:.4g} world units = {n / voxel_size:.4g} voxels\n{axis_words(d)}"
+    return f"{what} {n:.4g} world units\n= {n / voxel_size:.4g} voxels\n{axis_words(d)}"
 
 
 class MagnifiedView:
@@ -147,7 +147,8 @@ class MagnifiedView:
         pts = np.array([p, q, p - tick, p + tick, q - tick, q + tick])
         self.dim_mesh.points = pts
         self.dim_mesh.lines = np.array([2, 0, 1, 2, 2, 3, 2, 4, 5])
-        fs = int(np.clip(round(self.plotter.render_window.GetSize()[1] * 0.028), 9, 22))
+        w, h = self.plotter.render_window.GetSize()
+        fs = int(np.clip(round(min(h * 0.028, (1 - SPLIT) * w * 0.042)), 9, 22))
         for actor in (self.label, self.title):
             actor.GetTextProperty().SetFontSize(fs)
         self.text = dimension_text(story, vs)

@@ -364,7 +364,11 @@ class Viewport:
             self._track()
             self._refresh_cutaway()
         if self.inset is not None:
+            was = self.inset.visible
             self.inset.show(self.story if (self.story is not None and self.story.small) else None)
+            if was != self.inset.visible and self._camera_ready:  # the main view changed shape
+                self.set_camera(self._preset)
+                self.inset.show(self.story if self.inset.visible else None)
             if self.inset.visible:
                 drawn.add("dimension")
         self.legend = legend_of(drawn)

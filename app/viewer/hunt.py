@@ -99,6 +99,7 @@ class HuntTools(QObject):
         self._build_menu()
         win.pb.subscribe(self._on_playback)
         win.entities.table.cellClicked.connect(self._count_clicked)
+        win.timeline.jumped.connect(lambda _f: self.frame_story())
         if win.plotter is not None:
             self._clicks = _Clicks(self)
             win.plotter.installEventFilter(self._clicks)
@@ -177,6 +178,7 @@ class HuntTools(QObject):
         self.win.pb.set_playing(False)
         self.win.pb.set_focus(row)
         self.win.pb.set_frame(int(hit[0]))
+        self.frame_story()
         self.win.status(f"first {kind} of entity {int(self.win.session.trace.ids[row])}: frame {int(hit[0])}")
 
     # -- bookmarks -------------------------------------------------------------------------------
@@ -228,6 +230,12 @@ class HuntTools(QObject):
         return bookmarks_markdown(self.bookmarks.items, self.win.session.trace.time)
 
     # -- camera ----------------------------------------------------------------------------------
+    def frame_story(self):
+        """Point the camera preset in use at the focused story (after a jump to a divergence)."""
+        if self.win.viewport is not None and self.win.state is not None:
+            self.win.set_camera(self.win._camera)
+            self.win.plotter.render()
+
     def turn(self, degrees: float):
         if self.win.viewport is not None and self.win.state is not None:
             self.win.viewport.turn(degrees)

@@ -10,7 +10,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from PyQt6.QtCore import QElapsedTimer, QPointF, QRectF, Qt, QTimer
+from PyQt6.QtCore import QElapsedTimer, QPointF, QRectF, Qt, QTimer, pyqtSignal
 from PyQt6.QtGui import QColor, QIcon, QPainter, QPainterPath, QPen, QPixmap, QPolygonF
 from PyQt6.QtWidgets import QComboBox, QHBoxLayout, QLabel, QSizePolicy, QToolButton, QVBoxLayout, QWidget
 
@@ -305,6 +305,8 @@ class TimeStrip(QWidget):
 class Timeline(QWidget):
     """Transport row plus :class:`TimeStrip`; plays at the recorded rate times ``playback.rate``."""
 
+    jumped = pyqtSignal(int)  # a divergence jump landed on this frame (the view frames its story)
+
     TIPS = {"first": "First frame (Home)", "prev_div": "Previous divergence (Shift+Left / P)",
             "step_back": "Step back (Left / ,)", "play": "Play / pause (Space)",
             "step_fwd": "Step forward (Right / .)", "next_div": "Next divergence (Shift+Right / N)",
@@ -407,6 +409,7 @@ class Timeline(QWidget):
                 hit = [c for c in cols if self.flags.flags[f, c] & kind_mask(self.pb.kind)]
                 if hit:
                     self.pb.set_focus(hit[0])
+            self.jumped.emit(f)
         return f
 
     # -- playback -------------------------------------------------------------------------------

@@ -150,7 +150,7 @@ def test_small_snag_gets_the_magnified_view_with_its_dimension(snag):
         plotter, vp = story_viewport(s, 0, 10)
         try:
             assert vp.inset.visible and vp.inset.factor > 5
-            assert "gap 0.05 world units = 0.05 voxels" in vp.inset.text
+            assert "gap 0.05 world units\n= 0.05 voxels" in vp.inset.text
             assert "mostly along x (x -0.0416, z -0.0277)" in vp.inset.text  # 0.05 * (1.499, 0, 1) / 1.802
             assert ("measured error (magnified view)", style.DIMENSION.rgb) in vp.legend
         finally:
