@@ -132,7 +132,9 @@ class MagnifiedView:
         cam = self.ren.GetActiveCamera()
         # Parallel projection from outside the whole story: lengths read the same anywhere in it.
         cam.ParallelProjectionOn()
-        cam.SetParallelScale(r)
+        w, h = self.plotter.render_window.GetSize()
+        aspect = (1 - SPLIT) * max(w, 1) / max(h, 1)
+        cam.SetParallelScale(r / min(1.0, aspect))  # r fits the narrower side of the view
         cam.SetFocalPoint(*mid)
         cam.SetPosition(*(mid + view * (2.0 * story.radius + 4.0 * vs)))
         cam.SetViewUp(*cam_main.GetViewUp())
@@ -147,7 +149,6 @@ class MagnifiedView:
         pts = np.array([p, q, p - tick, p + tick, q - tick, q + tick])
         self.dim_mesh.points = pts
         self.dim_mesh.lines = np.array([2, 0, 1, 2, 2, 3, 2, 4, 5])
-        w, h = self.plotter.render_window.GetSize()
         fs = int(np.clip(round(min(h * 0.028, (1 - SPLIT) * w * 0.042)), 9, 22))
         for actor in (self.label, self.title):
             actor.GetTextProperty().SetFontSize(fs)
