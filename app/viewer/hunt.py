@@ -134,6 +134,8 @@ class HuntTools(QObject):
         A(m, "Turn right", lambda: self.turn(TURN_STEP), ["L"], "Hunt")
         A(m, "Zoom in", lambda: self.zoom(ZOOM_STEP), ["+", "="], "Hunt")
         A(m, "Zoom out", lambda: self.zoom(1 / ZOOM_STEP), ["-"], "Hunt")
+        A(m, "Draw more world around the story", lambda: self.widen(+4), ["Ctrl+Up"], "Hunt")
+        A(m, "Draw less world around the story", lambda: self.widen(-4), ["Ctrl+Down"], "Hunt")
         m.addSeparator()
         A(m, "Export animation…", self.export_dialog, ["Ctrl+Shift+A"], "Hunt")
         m.addAction(self.dock.toggleViewAction())
@@ -240,6 +242,15 @@ class HuntTools(QObject):
         if self.win.viewport is not None and self.win.state is not None:
             self.win.viewport.turn(degrees)
             self.win.plotter.render()
+
+    def widen(self, voxels: float):
+        """Change how far around the story's lines the world is drawn (2..64 voxels)."""
+        opts = self.win.view_options
+        if opts is None:
+            return
+        opts.cutaway_radius = float(np.clip(opts.cutaway_radius + voxels, 2.0, 64.0))
+        self.win.refresh_view()
+        self.win.status(f"world drawn {opts.cutaway_radius:g} voxels around the story")
 
     def zoom(self, factor: float):
         if self.win.viewport is not None and self.win.state is not None:

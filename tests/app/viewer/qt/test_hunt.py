@@ -188,6 +188,18 @@ def test_turntable_keeps_the_horizon_level(qtbot, window):
     assert np.linalg.norm(np.array(cam.position) - np.array(cam.focal_point)) == pytest.approx(d0 / 1.25)
 
 
+def test_world_radius_around_the_story_can_be_changed(qtbot, window):
+    win = open_and_wait(qtbot, window, DEMO, frame=40, entity=102, solved=False)
+    vox = win.viewport._meshes["voxels"]
+    n0 = vox.n_cells
+    press(qtbot, win, Qt.Key.Key_Up, Qt.KeyboardModifier.ControlModifier)
+    assert win.view_options.cutaway_radius == 12.0
+    assert vox.n_cells > n0  # more floor drawn around the dash
+    press(qtbot, win, Qt.Key.Key_Down, Qt.KeyboardModifier.ControlModifier)
+    press(qtbot, win, Qt.Key.Key_Down, Qt.KeyboardModifier.ControlModifier)
+    assert win.view_options.cutaway_radius == 4.0 and vox.n_cells < n0
+
+
 @pytest.fixture
 def far_trace(tmp_path):
     """float32 trace 65,536 voxels from the origin; entity 20's recorded end is NaN at frame 1."""
