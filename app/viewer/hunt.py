@@ -122,6 +122,7 @@ class HuntTools(QObject):
         m = self.win.menuBar().addMenu("&Hunt")
         A = self.win._act
         A(m, "Go to frame or time", self.focus_goto, ["Ctrl+G"], "Hunt")
+        A(m, "Clear the focus (jumps then cover every entity)", lambda: self.win.pb.set_focus(None), ["U"], "Hunt")
         A(m, "Next divergence, any entity", lambda: self.win.timeline.jump(+1, any_entity=True),
           ["Ctrl+Shift+Right"], "Hunt")
         A(m, "Previous divergence, any entity", lambda: self.win.timeline.jump(-1, any_entity=True),

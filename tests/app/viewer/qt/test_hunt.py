@@ -55,7 +55,8 @@ def test_next_divergence_stays_on_the_focused_entity_and_kind(qtbot, demo_window
 def test_focus_follows_the_jump_when_none_is_focused(qtbot, demo_window, flags):
     win = demo_window
     win.pb.set_frame(0)
-    win.pb.set_focus(None)
+    press(qtbot, win, Qt.Key.Key_U)  # clear the focus
+    assert win.pb.focus is None
     press(qtbot, win, Qt.Key.Key_N)
     f = np.flatnonzero((flags != 0).any(axis=1))
     f = f[f > 0][0]
