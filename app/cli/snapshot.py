@@ -44,7 +44,7 @@ def run(args) -> int:
             targets = [(f, Path(args.output) / f"{stem}-f{f}-e{eid}.png") for f in range(first, last + 1)]
         with PictureMaker(session, tuple(args.size)) as maker:
             for frame, out in targets:
-                img = maker.render(frame, eid if args.frames is not None else args.entity)
+                img = maker.picture(frame, eid if args.frames is not None else args.entity)
                 try:
                     save_picture(img, out)
                 except OSError as exc:

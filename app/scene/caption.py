@@ -9,12 +9,13 @@ or below the text when that makes the band lower.
 """
 from __future__ import annotations
 
+import textwrap
 from dataclasses import dataclass
 
 import numpy as np
 from PIL import Image, ImageDraw, ImageFont
 
-from resweep.core.check.kinds import SEVERITY
+from resweep.core.check.kinds import BY_NAME
 from resweep.core.check.validity import reason
 
 BAND_RGB = (30, 34, 42)
@@ -28,9 +29,12 @@ def settings_line(settings) -> str:
             f"tolerance {settings.tolerance:g} voxels, {settings.precision}")
 
 
-def caption_lines(session, state, col: int) -> list[str]:
-    """Four lines: trace file and frame/time; entity id and name; divergence kinds with their
-    errors (world units) and the first hit of the reference solve; the solver settings."""
+def caption_lines(session, state, col: int, story=None) -> list[str]:
+    """The caption: trace file and frame/time; entity id and name (and where the reference stops);
+    the kind told in words (its label from the kinds table) with its error in world units and
+    voxels and the error's axis, other kinds of the row; the kind's meaning; the solver settings.
+    ``story``: the :class:`~resweep.app.scene.story.Story` drawn (made here when None)."""
+    from resweep.app.scene.story import axis_words, tell_story
     tr = session.trace
     last = tr.frame_count - 1
     lines = [f"{session.name}   frame {state.frame} of 0..{last}   t = {state.time:.3f} s"]
@@ -41,25 +45,38 @@ def caption_lines(session, state, col: int) -> list[str]:
         lines.append(who + "   (not active at this frame)")
         lines.append("nothing solved")
         return lines + [settings_line(session.settings)]
-    lines.append(who)
-    kinds = state.kinds(col)
-    if not kinds:
-        lines.append(f"no divergence (tolerance {session.settings.tolerance:g} voxels)")
-    else:
-        parts = []
-        for k, err in state.errors(col).items():
-            if k == "invalid":  # no error value: say what is invalid instead
-                detail = " " + reason(state.start[col], state.motion[col], state.recorded_end[col],
-                                      state.half[col], session.settings.dtype)
-            else:
-                detail = "" if err is None else f" {err:.4f}"
-            parts.append(f"{k} [{SEVERITY[k]}]{detail}")
-        lines.append(", ".join(parts))
     hit = np.flatnonzero(state.rows.block[col] >= 0)
-    if len(hit) and not lines[-1].startswith("no "):
+    if len(hit):
         k = int(hit[0])
         v = ", ".join(str(int(x)) for x in state.rows.voxel[col, k])
-        lines[-1] += f"; reference stops at {session.world.shapes.name(int(state.rows.block[col, k]))} ({v})"
+        who += f"   reference stops at {session.world.shapes.name(int(state.rows.block[col, k]))} ({v})"
+    lines.append(who)
+    story = story if story is not None else tell_story(session, state, col)
+    if story is None or story.kind is None:
+        lines.append(f"no divergence: recorded and reference ends agree within {session.settings.tolerance:g} voxels")
+        return lines + [settings_line(session.settings)]
+    vs = session.world.voxel_size
+    kind = BY_NAME[story.kind]
+    text = f"{kind.label.upper()} ({kind.name}, {kind.severity})"
+    if story.error is not None:
+        axis = ""
+        measured = story.dim is not None and np.isclose(np.linalg.norm(np.subtract(*story.dim)), story.error,
+                                                         rtol=0.01)
+        if measured:  # the error is the length the picture measures: give its axis
+            axis = " " + axis_words(np.subtract(story.dim[1], story.dim[0]))
+        text += f": {story.error:.4g} world units = {story.error / vs:.4g} voxels{axis}"
+        if story.axis >= 0 and not np.isclose(story.gap_len, story.error, rtol=0.01):
+            text += (f"; recorded end {story.gap_len:.4g} world units = {story.gap_len / vs:.4g} voxels from "
+                     f"the reference end, {axis_words(story.gap)}")
+    if story.kind == "invalid":
+        text += ": " + reason(state.start[col], state.motion[col], state.recorded_end[col], state.half[col],
+                              session.settings.dtype)
+    others = [k for k in story.kinds if k != story.kind]
+    if others:
+        errs = state.errors(col)
+        text += "; also " + ", ".join(k + ("" if errs[k] is None else f" {errs[k]:.4g}") for k in others)
+    lines += textwrap.wrap(text, 96)
+    lines += textwrap.wrap("what it means: " + kind.meaning, 96)
     return lines + [settings_line(session.settings)]
 
 
@@ -87,7 +104,7 @@ def band_layout(width: int, height: int, lines: list[str], legend=()) -> BandLay
     """Layout of the band for a picture of ``width`` x ``height`` pixels (the band's share of the
     height included); the band takes at most half the picture. The legend goes right of the
     text, or below it when that makes the band lower."""
-    fs = int(np.clip(round(height * 0.03), 10, 30))
+    fs = int(np.clip(round(min(height * 0.03, width * 0.018)), 10, 30))  # tall narrow views too
     pad = max(3, fs // 2)
     line_h = int(round(fs * 1.3))
     base = BandLayout(fs, pad, line_h, 0)
@@ -95,7 +112,9 @@ def band_layout(width: int, height: int, lines: list[str], legend=()) -> BandLay
     n = len(lines)
     rows_beside = max(n, len(_legend_rows(base, width, beside, legend)))
     rows_below = n + len(_legend_rows(base, width, pad, legend))
-    x, row0, rows = (beside, 0, rows_beside) if rows_beside <= rows_below else (pad, n, rows_below)
+    widest = max((w for row in _legend_rows(base, width, pad, legend) for _, _, w in row), default=0)
+    fits_beside = beside + widest <= width - pad  # an entry wider than the room beside would be cut
+    x, row0, rows = (beside, 0, rows_beside) if rows_beside <= rows_below and fits_beside else (pad, n, rows_below)
     return BandLayout(fs, pad, line_h, min(height // 2, 2 * pad + rows * line_h), x, row0)
 
 

@@ -34,38 +34,58 @@ def pick_column(session, frame: int, entity_id=None) -> int:
 
 
 class PictureMaker:
-    """Pictures of one session's frames from one off-screen plotter, reused picture after picture
-    (a sequence of frames costs one VTK window and one voxel meshing, not one per frame).
+    """Off-screen pictures of one session, reusing one plotter and its chunk meshes (a frame range
+    renders much faster than one :func:`render_picture` per frame). Use as a context manager.
 
-    Use as a context manager, or call :meth:`close`.
+    The camera is pointed (``camera`` preset) for every picture; with ``reframe=False`` the
+    direction of the first picture is kept for the later ones (an animation keeps one point of
+    view while each frame's story is still framed whole).
     """
 
-    def __init__(self, session, size=(1280, 720), options=ViewOptions(), camera: str = "follow"):
-        self.session, self.options, self.camera = session, options, camera
-        self.W, self.H = (int(v) for v in size)
-        self.plotter = pv.Plotter(off_screen=True, window_size=(self.W, max(MIN_VIEW_H, self.H // 2)))
-        self.viewport = Viewport(self.plotter)
-        self.viewport.set_session(session)
+    def __init__(self, session, size=(1280, 720), options=ViewOptions(), camera: str = "story",
+                 reframe: bool = True):
+        self.session = session
+        self.size = tuple(int(v) for v in size)
+        self.options = options
+        self.camera = camera
+        self.reframe = reframe
+        W, H = self.size
+        self.plotter = pv.Plotter(off_screen=True, window_size=(W, max(MIN_VIEW_H, H // 2)))
+        self.vp = Viewport(self.plotter)
+        self.vp.enable_inset()
+        self.vp.set_session(session)
+        self._pointed = False
 
-    def render(self, frame, entity_id=None) -> np.ndarray:
-        """uint8 (H, W, 3) picture of ``frame`` focused on ``entity_id`` (see :func:`pick_column`),
-        caption band at the bottom; (W, H) = ``size`` exactly."""
-        W, H = self.W, self.H
-        session, vp, plotter = self.session, self.viewport, self.plotter
-        col = pick_column(session, frame, entity_id)
-        state = session.frame_state(frame)
-        lines = caption_lines(session, state, col)
-        # The legend depends on what gets drawn, so the band is laid out once the view is set up.
+    def picture(self, frame, entity_id=None) -> np.ndarray:
+        """uint8 (H, W, 3) picture of ``frame`` focused on ``entity_id`` (see :func:`pick_column`)."""
+        W, H = self.size
+        col = pick_column(self.session, frame, entity_id)
+        state = self.session.frame_state(frame)
+        vp, plotter = self.vp, self.plotter
         vp.show(state, col, self.options)
+        lines = caption_lines(self.session, state, col, vp.story)
+        # The legend depends on what gets drawn, so the band is laid out after the first show.
         layout = band_layout(W, H, lines, vp.legend)
         view_h = max(MIN_VIEW_H, H - layout.height)
         plotter.window_size = (W, view_h)
+        if not self.reframe and not self._pointed and vp.story is not None and vp.locked_dir is None:
+            vp.locked_dir = np.asarray(vp.story.view_dir, np.float64)
         vp.set_camera(self.camera)
+        self._pointed = True
+        vp.show(state, col, self.options)  # again: the magnified view follows the final camera
         plotter.render()
         view = np.asarray(plotter.screenshot(return_img=True))[..., :3]
         return compose(view, lines, vp.legend, layout, (W, H))
 
-    def close(self) -> None:
+    def lock_direction(self, frame, entity_id=None) -> None:
+        """Keep the story direction of ``frame`` for every later picture."""
+        from resweep.app.scene.story import tell_story
+        col = pick_column(self.session, frame, entity_id)
+        story = tell_story(self.session, self.session.frame_state(frame), col)
+        if story is not None:
+            self.vp.locked_dir = np.asarray(story.view_dir, np.float64)
+
+    def close(self):
         self.plotter.close()
 
     def __enter__(self):
@@ -73,6 +93,14 @@ class PictureMaker:
 
     def __exit__(self, *exc):
         self.close()
+
+
+def render_picture(session, frame, entity_id=None, size=(1280, 720), options=ViewOptions(),
+                   camera: str = "story") -> np.ndarray:
+    """uint8 (H, W, 3) picture of ``frame`` focused on ``entity_id`` (see :func:`pick_column`),
+    caption band at the bottom; (W, H) = ``size`` exactly."""
+    with PictureMaker(session, size, options, camera) as maker:
+        return maker.picture(frame, entity_id)
 
 
 def compose(view: np.ndarray, lines: list[str], legend, layout: BandLayout | None = None,
@@ -94,13 +122,6 @@ def compose(view: np.ndarray, lines: list[str], legend, layout: BandLayout | Non
     out[:vh, : min(W, w)] = view[:vh, :W]  # guards a window the driver sized otherwise
     out[top:, : min(W, w)] = band[: H - top, :W]
     return out
-
-
-def render_picture(session, frame, entity_id=None, size=(1280, 720), options=ViewOptions(),
-                   camera: str = "follow") -> np.ndarray:
-    """One picture (see :meth:`PictureMaker.render`) from a plotter made for it."""
-    with PictureMaker(session, size, options, camera) as maker:
-        return maker.render(frame, entity_id)
 
 
 #: Picture file types by file name suffix -> Pillow format name.

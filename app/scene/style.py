@@ -49,6 +49,17 @@ SLIDE = Style("slide path", (16, 150, 92), 1.0, "lines", 3.0, False)
 TRAIL = Style("recent centres", (96, 96, 108), 1.0, "lines", 1.5, False)
 GAP = Style("gap to recorded end", (236, 112, 28), 1.0, "lines", 1.5, False)
 OTHERS = Style("other entities", (250, 250, 252), 0.55, "surface", 1.0, True)
+# Outlines drawn over the scene, so the ends and the hit face keep their exact colour in view.
+RECORDED_EDGE = Style(RECORDED.label, RECORDED.rgb, 1.0, "wireframe", 2.5, False)
+HIT_EDGE = Style(HIT_FACE.label, HIT_FACE.rgb, 1.0, "wireframe", 3.0, False)
+GAP_TIP = Style(GAP.label, GAP.rgb, 1.0, "surface", 1.0, False)
+# Per-kind roles (see scene/story.py).
+CROSSED = Style("solid the straight recorded path crosses", (250, 200, 24), 1.0, "wireframe", 3.0, False)
+PATH = Style("straight recorded path", (190, 60, 0), 1.0, "lines", 3.0, False)
+OVERLAP = Style("overlap with solid", (206, 18, 40), 0.85, "surface", 1.0, False)
+PREVIOUS = Style("recorded end of the previous frame", (84, 88, 104), 1.0, "wireframe", 2.5, False)
+JUMP = Style("jump between frames", (0, 150, 160), 1.0, "lines", 3.0, False)
+DIMENSION = Style("measured error (magnified view)", (24, 26, 32), 1.0, "lines", 2.0, False)
 
 #: Scene background, bottom and top of the gradient.
 BACKGROUND = ((214, 221, 229), (246, 247, 250))

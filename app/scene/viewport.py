@@ -17,15 +17,24 @@ import pyvista as pv
 from vtkmodules.vtkRenderingCore import vtkRenderer
 
 from resweep.app.scene import style as S
+from resweep.app.scene.story import tell_story
 from resweep.app.scene.voxel_mesh import (Faces, ShapeTables, blocks_sight, box_quads, chunk_faces, concat, contact_quads,
-                         empty_faces, padded_types, select, shape_tables, swept_quads, to_polydata)
+                         cone_quads, empty_faces, padded_types, select, shape_tables, swept_quads, to_polydata)
 
-PRESETS = ("follow", "motion", "top", "side")
-_ROLES = ("start", "recorded", "reference", "swept", "hit", "normal", "slide", "trail", "gap", "others")
+PRESETS = ("story", "follow", "motion", "top", "side")
+_ROLES = ("start", "recorded", "reference", "swept", "hit", "normal", "slide", "trail", "gap", "others",
+          "rec_edges", "hit_edges", "gap_tip", "crossed", "path", "overlap", "previous", "jump")
 _STYLE = {"start": S.START, "recorded": S.RECORDED, "reference": S.REFERENCE, "swept": S.SWEPT,
           "hit": S.HIT_FACE, "normal": S.NORMAL, "slide": S.SLIDE, "trail": S.TRAIL, "gap": S.GAP,
-          "others": S.OTHERS}
+          "others": S.OTHERS, "rec_edges": S.RECORDED_EDGE, "hit_edges": S.HIT_EDGE, "gap_tip": S.GAP_TIP,
+          "crossed": S.CROSSED, "path": S.PATH, "overlap": S.OVERLAP, "previous": S.PREVIOUS, "jump": S.JUMP}
+#: Roles drawn in the layer over the scene: the story's key outlines stay in sight even where a
+#: translucent surface or a sliver of solid lies in front of them.
+_OVER = ("crossed", "overlap", "jump", "gap", "gap_tip")
+#: The story's key outlines, in a layer above those (a hit face on a crossed voxel stays seen).
+_TOP = ("rec_edges", "hit_edges", "reference")
 _VIEW_ANGLE = 30.0  # degrees, the pyvista default
+WHOLE_WORLD_MAX = 256.0  # voxels: "fit" draws the world up to this far from its centre
 CHUNK_VARIANTS = 256  # chunk meshes kept, current and earlier contents (a few MB for 16^3 chunks)
 
 
@@ -71,7 +80,11 @@ class Viewport:
         self.block_legend: list[tuple[str, tuple]] = []
         self._meshes: dict[str, pv.PolyData] = {}
         self._actors = {}
-        self._preset = "follow"
+        self._preset = "story"
+        self.story = None           # Story of the focused column (scene/story.py)
+        self.inset = None           # MagnifiedView, made by enable_inset()
+        self.locked_dir = None      # float (3,): the "story" preset keeps this direction (animations)
+        self.whole_world = False    # fit(): draw the whole world (up to WHOLE_WORLD_MAX voxels out)
         self._camera_ready = False
         self._focus = None          # float (3,) world point the camera tracks
         self._interest = None       # (lo, hi) bounds of the focused entity's geometry
@@ -133,8 +146,16 @@ class Viewport:
         rw = p.render_window
         rw.SetNumberOfLayers(max(2, rw.GetNumberOfLayers()))
         rw.AddRenderer(self._overlay)
-        vtkRenderer.RemoveActor(p.renderer, self._actors["reference"])
-        self._overlay.AddActor(self._actors["reference"])
+        self._top = vtkRenderer()
+        self._top.SetLayer(2)
+        self._top.InteractiveOff()
+        self._top.SetActiveCamera(p.renderer.GetActiveCamera())
+        self._top.SetViewport(p.renderer.GetViewport())
+        rw.SetNumberOfLayers(max(3, rw.GetNumberOfLayers()))
+        rw.AddRenderer(self._top)
+        for role in _OVER + _TOP:
+            vtkRenderer.RemoveActor(p.renderer, self._actors[role])
+            (self._overlay if role in _OVER else self._top).AddActor(self._actors[role])
         self._actors["voxels"].SetVisibility(False)
 
     def _put(self, role: str, mesh) -> bool:
@@ -181,6 +202,15 @@ class Viewport:
         if cells is None:
             cells = self._quad_cells.setdefault(n, np.arange(4 * n).reshape(n, 4))
         return self._set(role, np.asarray(quads).reshape(-1, 3), cells)
+
+    def enable_inset(self) -> None:
+        """Make the magnified second view (shown beside the main view for small errors)."""
+        if self.inset is None:
+            from resweep.app.scene.inset import MagnifiedView
+            shared = {r: a for r, a in self._actors.items()
+                      if r in ("voxels", "start", "recorded", "hit") + _OVER + _TOP}
+            self.inset = MagnifiedView(self.plotter, (self._overlay, self._top), shared, _OVER, _TOP,
+                                       lambda: self.session.world.voxel_size if self.session else 1.0)
 
     # -- session ---------------------------------------------------------------------------------
     def set_session(self, session) -> None:
@@ -232,22 +262,26 @@ class Viewport:
         self._chunks[c] = entry
         return entry
 
-    def _near_chunks(self, centre, radius: float) -> np.ndarray:
+    def _near_chunks(self, segs, radius: float) -> np.ndarray:
+        """Chunks with a part within ``radius`` of one of float (k, 2, 3) segments (only these are
+        meshed: a far-apart pair loads the chunks along its path, not a ball around both)."""
         w = self.session.world
         vs = w.voxel_size
-        lo = w.chunk_origin * vs
-        hi = (w.chunk_origin + w.chunk_size) * vs
-        nearest = np.clip(centre, lo, hi)
-        return np.flatnonzero(((nearest - centre) ** 2).sum(axis=1) <= (radius + vs) ** 2)
+        half = 0.5 * w.chunk_size * vs
+        centre = (w.chunk_origin * vs) + half
+        reach = radius + vs + half * np.sqrt(3.0)
+        return np.flatnonzero(seg_distance(centre, segs) <= reach)
 
-    def _update_voxels(self, focus, radius_vox: float, targets):
-        """Cut-away: faces of voxels within ``radius_vox`` voxels of ``focus``, minus the voxels
-        that block the line of sight from the camera to any of ``targets`` (float (k, 3), e.g. the
-        corners of the focused boxes), so walls and floors never hide them."""
+    def _update_voxels(self, focus, radius_vox: float, targets, segs=None):
+        """Cut-away: faces of voxels within ``radius_vox`` voxels of the ``segs`` (float (k, 2, 3);
+        default the point ``focus``), minus the voxels that block the line of sight from the camera
+        to any of ``targets`` (float (k, 3), e.g. the corners of the focused boxes), so walls and
+        floors never hide them."""
         w = self.session.world
         vs = w.voxel_size
         radius = radius_vox * vs
-        near = self._near_chunks(focus, radius)
+        segs = np.asarray([[focus, focus]] if segs is None else segs, np.float64).reshape(-1, 2, 3)
+        near = self._near_chunks(segs, radius)
         entries = [self._chunk(int(c)) for c in near]
         key = tuple(e[3] for e in entries)
         if key != self._merged_key:
@@ -258,15 +292,15 @@ class Viewport:
         # Redo the mask only when the focus moved by a voxel or the camera by a tenth of its
         # distance: finer moves change which voxels block the sight by at most a sliver.
         dist = max(np.linalg.norm(cam - focus), vs)
-        cut = (key, radius, np.round(focus / vs), cam, dist, len(targets))
+        cut = (key, radius, np.round(segs / vs).tobytes(), cam, dist, len(targets))
         old = self._cut_key
-        if (old is not None and old[:2] == cut[:2] and (np.abs(old[2] - cut[2]) <= 1).all()
+        if (old is not None and old[:3] == cut[:3]
                 and np.linalg.norm(old[3] - cam) < 0.1 * old[4] and old[5] == cut[5]):
             return
         self._cut_key = cut
         f = self._merged
         centre = f.centre.astype(np.float64)
-        keep = ((centre - focus) ** 2).sum(axis=1) <= radius ** 2
+        keep = seg_distance(centre, segs) <= radius
         if len(targets):
             cells, inv = np.unique(centre[keep], axis=0, return_inverse=True)
             blocked = blocks_sight(cells, 0.5 * vs - 0.02 * vs, cam, np.asarray(targets, np.float64))
@@ -304,16 +338,21 @@ class Viewport:
 
         bounds = [b for b in (box("start", start), box("reference", ref)) if b is not None]
         rec_box = box("recorded", rec)
+        if rec_box is not None and self._set_quads("rec_edges", box_quads(*rec_box)):
+            drawn.add("rec_edges")
+        else:
+            self._set("rec_edges", None)
         self._draw_passes(state, col, active, options, drawn, bounds)
         self._draw_lines(state, col, active, options, drawn)
         self._draw_others(state, col, options, drawn)
+        self.story = tell_story(self.session, state, col) if active else None
+        self._draw_story(self.story, drawn)
         vs = world.voxel_size
-        if active:
-            self._focus = np.asarray(start, np.float64)
-            if rec_box is not None and np.linalg.norm(np.asarray(rec) - start) <= options.cutaway_radius * vs:
-                bounds.append(rec_box)
-            lo = np.min([b[0] for b in bounds], axis=0)
-            hi = np.max([b[1] for b in bounds], axis=0)
+        if self.story is not None:
+            st = self.story
+            self._focus = st.centre
+            lo = np.min([st.lo] + [b[0] for b in bounds], axis=0)
+            hi = np.max([st.hi] + [b[1] for b in bounds], axis=0)
             self._interest = (lo, hi)
         elif self._focus is None:  # nothing to follow yet: look where the entity is nearest in time
             near = self.session.nearest_position(state.frame, col)
@@ -324,26 +363,58 @@ class Viewport:
         else:
             self._track()
             self._refresh_cutaway()
-        self.legend = [(_STYLE[r].label, _STYLE[r].rgb) for r in _ROLES if r in drawn]
+        if self.inset is not None:
+            was = self.inset.visible
+            self.inset.show(self.story if (self.story is not None and self.story.small) else None)
+            if was != self.inset.visible and self._camera_ready:  # the main view changed shape
+                self.set_camera(self._preset)
+                self.inset.show(self.story if self.inset.visible else None)
+            if self.inset.visible:
+                drawn.add("dimension")
+        self.legend = legend_of(drawn)
 
     def _world_centre(self):
         w = self.session.world
         return (w.lo + w.hi) / 2.0 * w.voxel_size
 
     def _refresh_cutaway(self):
-        state, col = self._state, self._col
+        state = self._state
         if state is None or self._focus is None:
             return
-        targets = []
-        if state.active[col] and _finite(state.half[col]):
-            half = state.half[col] * 0.95  # corners pulled in so touching faces do not count
-            corners = np.array([[i, j, k] for i in (-1, 1) for j in (-1, 1) for k in (-1, 1)], np.float64)
-            for c in (state.start[col], state.rows.ref_end[col]):
-                if _finite(c):
-                    targets.append(c + corners * half)
-                    targets.append(np.asarray(c, np.float64)[None])
-        targets = np.concatenate(targets) if targets else np.zeros((0, 3))
-        self._update_voxels(self._focus, self._options.cutaway_radius, targets)
+        st = getattr(self, "story", None)
+        targets = st.targets if st is not None else np.zeros((0, 3))
+        radius = self._options.cutaway_radius
+        if self.whole_world:
+            w = self.session.world
+            self._update_voxels((w.lo + w.hi) / 2.0 * w.voxel_size, min(WHOLE_WORLD_MAX, float(
+                np.linalg.norm(w.hi - w.lo)) / 2 + 1), targets)
+        elif st is not None:  # the world drawn follows the whole story (start, both ends, jump)
+            self._update_voxels(self._focus, radius, targets, st.segments())
+        else:
+            self._update_voxels(self._focus, radius, targets)
+
+    def _draw_story(self, st, drawn):
+        """The kind's own geometry: crossed solid, overlap volume, previous end and the jump, the
+        straight recorded path, the arrow tip of the gap."""
+        vs = self.session.world.voxel_size
+        parts = {"crossed": None, "overlap": None, "previous": None, "path": None, "jump": None, "gap_tip": None}
+        if st is not None:
+            if len(st.crossed):
+                parts["crossed"] = box_quads(st.crossed[:, :3], st.crossed[:, 3:])
+                parts["path"] = np.stack([st.start, st.rec])
+            if len(st.overlap):
+                parts["overlap"] = box_quads(st.overlap[:, :3], st.overlap[:, 3:])
+            if st.prev_end is not None:
+                parts["previous"] = box_quads(st.prev_end - st.half, st.prev_end + st.half)
+                parts["jump"] = np.stack([st.prev_end, st.start])
+            if "gap" in drawn and st.gap_len > 0:
+                size = min(0.35 * st.gap_len, 0.06 * max(st.radius, vs))
+                parts["gap_tip"] = cone_quads(st.rec, st.gap / st.gap_len, size)
+        for role, geo in parts.items():
+            ok = (self._set(role, geo, lines=True) if _STYLE[role].representation == "lines"
+                  else self._set_quads(role, geo))
+            if ok:
+                drawn.add(role)
 
     def _draw_passes(self, state, col, active, options, drawn, bounds):
         rows = state.rows
@@ -369,7 +440,7 @@ class Viewport:
                 f, arr = contact_quads(rows.voxel[col, k], rows.normal[col, k], boxes, b, half, skin, vs)
                 hits.append(f)
                 arrows.append(arr)
-        for role, parts in (("swept", swept), ("hit", hits), ("normal", arrows)):
+        for role, parts in (("swept", swept), ("hit", hits), ("hit_edges", hits), ("normal", arrows)):
             if self._set_quads(role, np.concatenate(parts) if parts else None):
                 drawn.add(role)
         path = pts[: n + 1] if n else np.zeros((0, 3))
@@ -423,15 +494,21 @@ class Viewport:
         return m / n if n > 1e-9 else None
 
     def set_camera(self, preset: str) -> None:
-        """Point the camera: "follow" (three-quarter view from above and behind), "motion" (look
+        """Point the camera: "story" (the direction that sees the divergence's gap, see
+        :func:`.story.choose_view`; "follow" when nothing is focused), "follow" (three-quarter view
+        from above and behind), "motion" (look
         along the motion), "top" (down the up axis), "side" (across the motion); then frame the
-        focused entity's boxes and swept volumes."""
+        focused story (start, both ends, hit faces and the kind's geometry)."""
+        self.whole_world = False
         if preset not in PRESETS:
             raise ValueError(f"camera preset must be one of {', '.join(PRESETS)}, got {preset!r}")
         self._preset = preset
         up, h1, h2 = self._axes_frame()
         view_up = up
-        if preset == "follow":
+        st = getattr(self, "story", None)
+        if preset == "story" and st is not None:
+            to_cam = self.locked_dir if self.locked_dir is not None else st.view_dir
+        elif preset in ("story", "follow"):
             back = self._motion_dir(True)
             back = -back if back is not None else -h2
             side = np.cross(up, back)
@@ -451,8 +528,9 @@ class Viewport:
         to_cam = to_cam / np.linalg.norm(to_cam)
         lo, hi = self._interest if self._interest is not None else (np.zeros(3), np.ones(3))
         centre = (lo + hi) / 2
-        r = max(np.linalg.norm(hi - lo) / 2, 2.5 * (self.session.world.voxel_size if self.session else 1.0))
-        dist = r / np.sin(np.radians(_VIEW_ANGLE / 2)) * 1.05
+        vs = self.session.world.voxel_size if self.session else 1.0
+        pad = 1.5 * vs  # a voxel and a half of context around the story
+        dist = frame_distance(lo - pad, hi + pad, to_cam, view_up, self._aspect())
         cam = self.plotter.camera
         cam.focal_point = tuple(centre)
         cam.position = tuple(centre + to_cam * dist)
@@ -461,6 +539,12 @@ class Viewport:
         self._camera_ready = True
         self._refresh_cutaway()
         self.plotter.renderer.ResetCameraClippingRange()
+
+    def _aspect(self) -> float:
+        """Width / height of the main view in pixels."""
+        w, h = self.plotter.render_window.GetSize()
+        x0, y0, x1, y1 = self.plotter.renderer.GetViewport()
+        return max(1e-3, (x1 - x0) * max(w, 1)) / max(1e-3, (y1 - y0) * max(h, 1))
 
     def _track(self):
         """Move the camera with the focus, keeping its direction and distance."""
@@ -475,8 +559,47 @@ class Viewport:
         self._tracked = self._focus.copy()
         self.plotter.renderer.ResetCameraClippingRange()
 
+    def turn(self, degrees: float) -> None:
+        """Turntable: orbit the camera ``degrees`` about the up axis through the focused story's
+        centre; the horizon stays level (view up = the trace's up axis)."""
+        up = self._axes_frame()[0]
+        cam = self.plotter.camera
+        centre = (self._interest[0] + self._interest[1]) / 2 if self._interest is not None else \
+            np.asarray(cam.focal_point, np.float64)
+        a = np.radians(degrees)
+        k = up
+        def rot(v):  # Rodrigues' rotation about unit k (common practice)
+            return v * np.cos(a) + np.cross(k, v) * np.sin(a) + k * (k @ v) * (1 - np.cos(a))
+        cam.position = tuple(centre + rot(np.asarray(cam.position, np.float64) - centre))
+        cam.focal_point = tuple(centre + rot(np.asarray(cam.focal_point, np.float64) - centre))
+        cam.up = tuple(up)
+        self._tracked = None if self._focus is None else self._focus.copy()
+        self._refresh_cutaway()
+        self.plotter.renderer.ResetCameraClippingRange()
+
+    def zoom(self, factor: float) -> None:
+        """Move the camera toward its focal point (``factor`` > 1 nearer), keeping its direction."""
+        cam = self.plotter.camera
+        f = np.asarray(cam.focal_point, np.float64)
+        cam.position = tuple(f + (np.asarray(cam.position, np.float64) - f) / float(factor))
+        self._refresh_cutaway()
+        self.plotter.renderer.ResetCameraClippingRange()
+
+    def pick(self, x: float, y: float):
+        """World point (float64 (3,)) of the surface drawn at window pixel (x right, y down), or None."""
+        from vtkmodules.vtkRenderingCore import vtkCellPicker
+        picker = vtkCellPicker()
+        picker.SetTolerance(0.0005)
+        h = self.plotter.render_window.GetSize()[1]
+        if not picker.Pick(float(x), float(h - 1 - y), 0.0, self.plotter.renderer):
+            return None
+        return np.asarray(picker.GetPickPosition(), np.float64)
+
     def fit(self) -> None:
-        """Keep the view direction and frame everything drawn (voxels included)."""
+        """Keep the view direction, draw the whole world (up to WHOLE_WORLD_MAX voxels from its
+        centre) and frame everything drawn. The next camera preset goes back to the story."""
+        self.whole_world = True
+        self._refresh_cutaway()
         self.plotter.reset_camera()
         self._refresh_cutaway()
         self.plotter.renderer.ResetCameraClippingRange()
@@ -490,6 +613,50 @@ class Viewport:
         dx, dy, _ = ren.GetDisplayPoint()
         h = self.plotter.render_window.GetSize()[1]
         return float(dx), float(h - dy)
+
+
+def seg_distance(points, segs) -> np.ndarray:
+    """float64 (n,) distance from each of float (n, 3) ``points`` to the nearest of float (k, 2, 3)
+    segments (a zero-length segment is a point)."""
+    p = np.asarray(points, np.float64)
+    out = np.full(len(p), np.inf)
+    for a, b in np.asarray(segs, np.float64).reshape(-1, 2, 3):
+        d = b - a
+        dd = float(d @ d)
+        t = np.clip(((p - a) @ d) / dd, 0.0, 1.0) if dd > 0 else np.zeros(len(p))
+        out = np.minimum(out, np.linalg.norm(p - (a + t[:, None] * d), axis=1))
+    return out
+
+
+def frame_distance(lo, hi, to_cam, view_up, aspect: float) -> float:
+    """Camera distance from the centre of box [lo, hi] (float (3,)) along unit ``to_cam`` at which
+    the whole box fits a perspective view of vertical angle _VIEW_ANGLE and ``aspect`` (w / h)."""
+    lo, hi = np.asarray(lo, np.float64), np.asarray(hi, np.float64)
+    c = (lo + hi) / 2
+    back = np.asarray(to_cam, np.float64)
+    up = np.asarray(view_up, np.float64) - (np.asarray(view_up, np.float64) @ back) * back
+    if np.linalg.norm(up) < 1e-9:
+        up = np.roll(back, 1)
+        up -= (up @ back) * back
+    up /= np.linalg.norm(up)
+    right = np.cross(back, up)
+    corners = np.array([[a, b, d] for a in (0, 1) for b in (0, 1) for d in (0, 1)], np.float64)
+    pts = lo + corners * (hi - lo) - c
+    t = np.tan(np.radians(_VIEW_ANGLE / 2))
+    # each corner at depth z toward the camera needs dist - z >= |u| / t (and |r| / (t * aspect))
+    need = np.maximum(np.abs(pts @ up) / t, np.abs(pts @ right) / (t * aspect)) + pts @ back
+    return float(max(need.max(), 1e-6)) * 1.04
+
+
+def legend_of(roles) -> list[tuple[str, tuple]]:
+    """One (label, rgb) per label among ``roles`` drawn (outlines share their fill's entry), in role order."""
+    out, seen = [], set()
+    for r in _ROLES + ("dimension",):
+        st = S.DIMENSION if r == "dimension" else _STYLE[r]
+        if r in roles and st.label not in seen:
+            seen.add(st.label)
+            out.append((st.label, st.rgb))
+    return out
 
 
 def _one_face():

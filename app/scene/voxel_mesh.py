@@ -332,3 +332,18 @@ def blocks_sight(centre, h: float, eye, targets) -> np.ndarray:
             leave = np.fmin.reduce(np.maximum(t1, t2), axis=1)
             out |= (enter < leave) & (leave > 0) & (enter < 1)
     return out
+
+
+def cone_quads(tip, direction, size: float) -> np.ndarray:
+    """float64 (5, 4, 3) a square pyramid (arrow head) with its point at ``tip``, pointing along
+    unit ``direction``, ``size`` long and ``size`` wide, world units."""
+    d = np.asarray(direction, np.float64)
+    helper = np.array([0.0, 0.0, 1.0]) if abs(d[2]) < 0.9 else np.array([1.0, 0.0, 0.0])
+    u = np.cross(d, helper)
+    u /= np.linalg.norm(u)
+    w = np.cross(d, u)
+    tip = np.asarray(tip, np.float64)
+    c = tip - d * size
+    h = 0.5 * size
+    base = [c - h * u - h * w, c + h * u - h * w, c + h * u + h * w, c - h * u + h * w]
+    return np.asarray([[base[i], base[(i + 1) % 4], tip, tip] for i in range(4)] + [base[::-1]])

@@ -7,6 +7,8 @@ from __future__ import annotations
 
 import html
 
+import numpy as np
+
 from PyQt6.QtCore import Qt, QTimer
 from PyQt6.QtGui import QBrush, QColor
 from PyQt6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QHeaderView,
@@ -18,7 +20,7 @@ from resweep.core.errors import SettingsError
 from resweep.core.solve.settings import PRECISIONS, SolverSettings
 
 from resweep.app.viewer.playback import Playback
-from resweep.app.viewer.report_md import FrameFacts, cells, num
+from resweep.app.viewer.report_md import INPUT_ROWS, FrameFacts, cells, num
 from resweep.app.viewer.flags import TraceFlags
 from resweep.app.viewer.timeline import SEVERITY_COLOURS
 
@@ -197,17 +199,27 @@ LABEL_W, CELL_W = 14, 11
 
 
 def facts_lines(f: FrameFacts) -> list[str]:
-    """Fixed-width text of the numbers (what a copy from the panel gives): one line per quantity."""
+    """Fixed-width text of the numbers (what a copy from the panel gives): one line per quantity.
+    Columns widen to the longest number (far from the origin, e.g. 65536.123456), so they never
+    run together; NaN values show as NaN and a line names the fields that hold them."""
     unit = "world units" + ("" if f.voxel_size == 1.0 else f", 1 voxel = {f.voxel_size:g}")
-    out = [f"{'(' + unit + ')':<{LABEL_W}}" + "".join(f"{h:>{CELL_W}}" for h in ("x", "y", "z", "|v|"))]
+    texts = [c for label, v, _ in f.vectors for c in cells(label, v)] + [num(n) for _, _, n in f.vectors if n is not None]
+    w = max([CELL_W] + [len(c) + 2 for c in texts])
+    out = [f"{'(' + unit + ')':<{LABEL_W}}" + "".join(f"{h:>{w}}" for h in ("x", "y", "z", "|v|"))]
+    nan_fields = []
     for label, v, length in f.vectors:
-        row = "".join(f"{c:>{CELL_W}}" for c in cells(label, v))
-        out.append(f"{label:<{LABEL_W}}{row}" + (f"{num(length):>{CELL_W}}" if length is not None else ""))
+        row = "".join(f"{c:>{w}}" for c in cells(label, v))
+        out.append(f"{label:<{LABEL_W}}{row}" + (f"{num(length):>{w}}" if length is not None else ""))
+        bad = [a for a, x in zip("xyz", v) if np.isnan(x)]
+        if bad and label in INPUT_ROWS:
+            nan_fields.append(f"{label} {', '.join(bad)}")
+    if nan_fields:
+        out.append("NaN in: " + "; ".join(nan_fields))
     for k in f.kinds:
         if k == "invalid":
             out.append(f"{'invalid':<{LABEL_W}}{f.invalid}")
         else:
-            out.append(f"{'error':<{LABEL_W}}{num(f.errors[k]):>{CELL_W}}  {k}")
+            out.append(f"{'error':<{LABEL_W}}{num(f.errors[k]):>{w}}  {k}")
     if f.passes:
         out += ["", "pass toi        normal    hit voxel   block        tested",
                 "     (toi: time of impact, fraction of the pass's motion)"]

@@ -10,11 +10,11 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from PyQt6.QtCore import QElapsedTimer, QPointF, QRectF, Qt, QTimer
+from PyQt6.QtCore import QElapsedTimer, QPointF, QRectF, Qt, QTimer, pyqtSignal
 from PyQt6.QtGui import QColor, QIcon, QPainter, QPainterPath, QPen, QPixmap, QPolygonF
 from PyQt6.QtWidgets import QComboBox, QHBoxLayout, QLabel, QSizePolicy, QToolButton, QVBoxLayout, QWidget
 
-from resweep.core.check.kinds import KINDS
+from resweep.core.check.kinds import KINDS, kind_mask
 
 from resweep.app.viewer.playback import RATES, Playback
 from resweep.app.viewer.flags import UNSOLVED, TraceFlags
@@ -305,6 +305,8 @@ class TimeStrip(QWidget):
 class Timeline(QWidget):
     """Transport row plus :class:`TimeStrip`; plays at the recorded rate times ``playback.rate``."""
 
+    jumped = pyqtSignal(int)  # a divergence jump landed on this frame (the view frames its story)
+
     TIPS = {"first": "First frame (Home)", "prev_div": "Previous divergence (Shift+Left / P)",
             "step_back": "Step back (Left / ,)", "play": "Play / pause (Space)",
             "step_fwd": "Step forward (Right / .)", "next_div": "Next divergence (Shift+Right / N)",
@@ -390,15 +392,24 @@ class Timeline(QWidget):
         self._show_position()
 
     # -- divergence jumps -----------------------------------------------------------------------
-    def jump(self, direction: int) -> int | None:
-        """Move to the next (+1) or previous (-1) divergence of the filter kind; returns the frame."""
+    def jump(self, direction: int, any_entity: bool = False) -> int | None:
+        """Move to the next (+1) or previous (-1) divergence of the filter kind of the focused entity
+        (of the strip's entities when none is focused, or with ``any_entity``; the focus then moves
+        to the first entity diverging there). Returns the frame, or None when there is none."""
         if self.flags is None:
             return None
+        own = self.pb.focus is not None and not any_entity
+        cols = (self.pb.focus,) if own else self.pb.strip_columns
         fn = self.flags.next_divergence if direction > 0 else self.flags.previous_divergence
-        f = fn(self.pb.frame, self.pb.strip_columns, self.pb.kind)
+        f = fn(self.pb.frame, cols, self.pb.kind)
         if f is not None:
             self.pb.set_playing(False)
             self.pb.set_frame(f)
+            if not own:
+                hit = [c for c in cols if self.flags.flags[f, c] & kind_mask(self.pb.kind)]
+                if hit:
+                    self.pb.set_focus(hit[0])
+            self.jumped.emit(f)
         return f
 
     # -- playback -------------------------------------------------------------------------------

@@ -11,7 +11,7 @@ from pathlib import Path
 
 import numpy as np
 from PyQt6.QtCore import QEvent, QObject, QSettings, Qt
-from PyQt6.QtGui import QAction, QColor, QGuiApplication, QImage, QKeySequence, QPainter, QPalette
+from PyQt6.QtGui import QAction, QColor, QGuiApplication, QImage, QKeySequence, QPalette
 from PyQt6.QtWidgets import (QApplication, QDialog, QDockWidget, QFileDialog, QHeaderView, QLabel, QMainWindow,
                              QMessageBox, QProgressBar, QPushButton, QTableWidget, QTableWidgetItem, QVBoxLayout,
                              QWidget)
@@ -23,6 +23,7 @@ from resweep.app.viewer.panels import EntitiesPanel, FramePanel, SettingsPanel
 from resweep.app.viewer.playback import Playback
 from resweep.app.viewer.report_md import frame_facts, report_markdown, snapshot_command
 from resweep.app.viewer.flags import TraceFlags
+from resweep.app.viewer.hunt import HuntTools
 from resweep.app.viewer.timeline import ACCENT, GROOVE, INK, PANEL, Timeline, draw_icon
 from resweep.app.viewer.worker import TraceWorker, error_line
 from resweep.sample_traces import demo_path
@@ -54,7 +55,7 @@ class MainWindow(QMainWindow):
         self.worker = TraceWorker(session_factory or default_session_factory, self)
         self._pending: dict = {}
         self._solved_upto = 0
-        self._camera = "follow"
+        self._camera = "story"
         self.plotter = None
         self.viewport = None
         self.view_options = None
@@ -62,6 +63,7 @@ class MainWindow(QMainWindow):
         self._build_docks()
         self._build_status()
         self._build_actions()
+        self.hunt = HuntTools(self)  # go to, bookmarks, measuring, turntable, animation export
         self.pb.subscribe(self._on_playback)
         self.worker.loaded.connect(self._adopt)
         self.worker.load_failed.connect(self._load_failed)
@@ -95,6 +97,7 @@ class MainWindow(QMainWindow):
             self._key_guard = _SwallowKeys(self.plotter)
             self.plotter.installEventFilter(self._key_guard)
             self.viewport = Viewport(self.plotter)
+            self.viewport.enable_inset()
             self.view_options = ViewOptions()
             lay.addWidget(self.plotter, 1)
         else:
@@ -183,7 +186,7 @@ class MainWindow(QMainWindow):
         A(e, "Previous entity", lambda: self.cycle_entity(-1), ["Shift+E"], "Entity")
         A(e, "Focus camera on entity", self.focus_camera, ["F"], "Entity")
         v = m.addMenu("&View")
-        for key, preset in (("1", "follow"), ("2", "motion"), ("3", "top"), ("4", "side")):
+        for key, preset in (("1", "follow"), ("2", "motion"), ("3", "top"), ("4", "side"), ("5", "story")):
             A(v, f"Camera: {preset}", lambda _=False, pr=preset: self.set_camera(pr), [key], "View")
         A(v, "Fit the whole world", self.fit, ["0"], "View")
         v.addSeparator()
@@ -353,7 +356,7 @@ class MainWindow(QMainWindow):
             self.viewport.fit()
 
     def focus_camera(self):
-        self.set_camera("follow")
+        self.set_camera("story")
 
     def cycle_entity(self, step: int):
         n = self.pb.entity_count
@@ -382,7 +385,8 @@ class MainWindow(QMainWindow):
             rows = np.frombuffer(ptr, np.uint8).reshape(img.height(), img.bytesPerLine())
             view = np.ascontiguousarray(rows[:, : 3 * img.width()].reshape(img.height(), img.width(), 3))
         have = self.state is not None and self.pb.focus is not None
-        lines = caption_lines(self.session, self.state, self.pb.focus) if have else []
+        story = self.viewport.story if self.viewport is not None else None
+        lines = caption_lines(self.session, self.state, self.pb.focus, story) if have else []
         legend = self.viewport.legend if self.viewport is not None else []
         return np.ascontiguousarray(compose(view, lines, legend))
 
@@ -427,7 +431,7 @@ class MainWindow(QMainWindow):
         col = self.pb.focus
         facts = frame_facts(self.session, self.state, col) if col is not None else None
         return report_markdown(facts, self.session.path, self.state.frame, self.state.time, self.pb.settings,
-                               self.session.trace.title)
+                               self.session.trace.title) + self.hunt.report_section()
 
     def copy_report(self):
         text = self.report()
