@@ -1,0 +1,97 @@
+"""Run a farm: hand every trace (and every range of a big one) to an engine, gather the results.
+
+One task per trace; a task that finds its trace too big returns a plan and its ranges go out as
+new tasks. Results are stored by trace and first frame, so a task run twice (Dask re-runs the
+tasks of a worker that died) counts once, and the outcome does not depend on finishing order.
+Ctrl-C (KeyboardInterrupt) cancels the outstanding work and returns what was finished.
+"""
+from __future__ import annotations
+
+import queue
+
+from resweep.core.analysis.farm_report import FarmResults, merge_ranges
+
+
+def run_farm(traces, options, engine, progress=None, missing=()) -> FarmResults:
+    """Check ``traces`` (TraceInputs) with ``options`` (FarmOptions) on ``engine``.
+
+    Args:
+        missing: farm_inputs.Missing entries, recorded as unreadable.
+        progress: called as ``progress(traces_done, traces_total, entity_frames_done)`` after every
+            finished task.
+    """
+    res = FarmResults(list(traces), keys={t.path: t.key for t in traces})
+    for m in missing:
+        res.unreadable[m.input] = f"{m.input}: {m.reason}"
+    run = _Run(res, options, engine, progress)
+    for t in res.traces:
+        run.submit(t.path)
+    try:
+        run.drain()
+    except KeyboardInterrupt:
+        res.interrupted = True
+        engine.cancel(list(run.live))
+    return res
+
+
+class _Run:
+    """The bookkeeping of one farm run (futures in flight, ranges of split traces)."""
+
+    def __init__(self, res: FarmResults, options, engine, progress):
+        self.res, self.options, self.engine, self.progress = res, options, engine, progress
+        self.done = queue.Queue()
+        self.live = {}    # future -> (path, frames)
+        self.plans = {}   # path -> [(f0, f1), ...]
+        self.parts = {}   # path -> {f0: TraceReport}
+        self.rows_done = 0
+        self.finished = 0  # traces with a report or a reason
+
+    def submit(self, path, frames=None):
+        fut = self.engine.submit(path, self.options, frames)
+        self.live[fut] = (path, frames)
+        fut.add_done_callback(self.done.put)
+
+    def drain(self):
+        while self.live:
+            try:
+                fut = self.done.get(timeout=0.25)
+            except queue.Empty:
+                continue
+            if fut not in self.live:
+                continue
+            path, frames = self.live.pop(fut)
+            part, reason = self.engine.outcome(fut)
+            self.take(path, part, reason)
+            if self.progress is not None:
+                self.progress(self.finished, len(self.res.traces), self.rows_done)
+
+    def take(self, path, part, reason):
+        res = self.res
+        if path in res.unreadable or path in res.reports:
+            return  # a duplicate, or another range of a trace that already failed
+        if part is not None:
+            res.worker_seconds += part.seconds
+        if reason is not None or (part is not None and part.error):
+            res.unreadable[path] = _with_path(path, reason or part.error)
+            self.parts.pop(path, None)
+            self.finished += 1
+        elif part is None or part.report is None and part.plan is None:
+            return  # cancelled: not checked
+        elif part.plan is not None:
+            self.plans[path] = [tuple(r) for r in part.plan]
+            for r in self.plans[path]:
+                self.submit(path, r)
+        elif not part.report.cancelled:
+            self.rows_done += part.report.entity_frames
+            got = self.parts.setdefault(path, {})
+            got[part.frames[0]] = part.report
+            plan = self.plans.get(path, [(part.frames[0], part.frames[1])])
+            if all(f0 in got for f0, _ in plan):
+                res.reports[path] = merge_ranges([got[f0] for f0, _ in plan], self.options.limit)
+                del self.parts[path]
+                self.finished += 1
+
+
+def _with_path(path: str, reason: str) -> str:
+    """Reasons from the reader start with the path; an engine's reason gets it in front."""
+    return reason if reason.startswith(str(path)) else f"{path}: {reason}"
