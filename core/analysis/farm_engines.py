@@ -70,9 +70,9 @@ class DaskEngine:
                 self.client = Client(address, timeout=timeout)
             else:
                 self._cluster = LocalCluster(n_workers=workers or os.cpu_count() or 1, threads_per_worker=1,
-                                             processes=True, dashboard_address=None)
+                                             processes=True, dashboard_address=":0")
                 self.client = Client(self._cluster)
-        except (OSError, TimeoutError, ValueError) as exc:
+        except (OSError, TimeoutError, ValueError, RuntimeError) as exc:
             self.close()
             raise ClusterError(address or "local", f"cannot start or reach the cluster: {_reason(exc)}") from None
         self.name = address or f"local cluster, {workers} worker processes"

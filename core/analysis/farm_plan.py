@@ -17,16 +17,18 @@ def plan_ranges(frame_count: int, entity_count: int, block_frames: int,
                 range_rows: int = RANGE_ROWS) -> list[tuple[int, int]]:
     """Frame ranges ``[(f0, f1), ...]`` of about ``range_rows`` entity-frames each.
 
-    A trace of at most 1.5 ``range_rows`` entity-frames stays whole (one range), as does one of a
-    single block. Ranges have (nearly) equal sizes so that workers finish together.
+    A trace of at most 1.5 ``range_rows`` entity-frames stays whole (one range). Ranges have
+    (nearly) equal sizes so that workers finish together, and whole blocks of ``block_frames``
+    when they are at least one block long.
     """
     F, N = int(frame_count), max(1, int(entity_count))
-    step = max(1, int(block_frames))
     rows = F * N
-    if F == 0 or rows <= 1.5 * range_rows or F <= step:
+    if F <= 1 or rows <= 1.5 * range_rows:
         return [(0, F)]
-    n = min(-(-rows // int(range_rows)), -(-F // step))
-    per = -(-F // n)                 # frames per range before alignment
-    per = -(-per // step) * step      # whole blocks
+    n = min(-(-rows // int(range_rows)), F)
+    per = -(-F // n)                  # frames per range
+    step = max(1, int(block_frames))
+    if per >= step:
+        per = -(-per // step) * step  # whole blocks
     bounds = list(range(0, F, per)) + [F]
     return list(zip(bounds[:-1], bounds[1:]))
