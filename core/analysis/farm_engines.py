@@ -1,7 +1,7 @@
 """Where farm tasks run: one in-process thread, a local Dask cluster, or a remote Dask scheduler.
 
-Every engine takes :func:`farm_task.check_part` calls and hands back futures that call their done
-callbacks once; :meth:`outcome` turns a finished future into ``(PartResult, None)`` or
+Every engine takes :func:`farm_task.check_batch` calls and hands back futures that call their done
+callbacks once; :meth:`outcome` turns a finished future into ``([PartResult, ...], None)`` or
 ``(None, one-line reason)`` (``(None, None)`` when it was cancelled). Dask is imported only when a
 Dask engine is made, so importing the core never loads it.
 
@@ -15,7 +15,7 @@ import os
 import threading
 from concurrent.futures import CancelledError, ThreadPoolExecutor
 
-from resweep.core.analysis.farm_task import check_part
+from resweep.core.analysis.farm_task import check_batch
 from resweep.core.errors import ClusterError
 
 
@@ -35,8 +35,8 @@ class ThreadEngine:
         self._pool = ThreadPoolExecutor(1, thread_name_prefix="resweep-farm")
         self._stop = threading.Event()
 
-    def submit(self, path, options, frames=None):
-        return self._pool.submit(check_part, path, options, frames, self._stop.is_set)
+    def submit(self, jobs, options):
+        return self._pool.submit(check_batch, jobs, options, self._stop.is_set)
 
     def outcome(self, fut):
         try:
@@ -78,8 +78,8 @@ class DaskEngine:
         self.name = address or f"local cluster, {workers} worker processes"
         self.workers = max(1, len(self.client.scheduler_info().get("workers", {})))
 
-    def submit(self, path, options, frames=None):
-        return self.client.submit(check_part, path, options, frames, pure=False)
+    def submit(self, jobs, options):
+        return self.client.submit(check_batch, jobs, options, pure=False)
 
     def outcome(self, fut):
         if fut.status == "cancelled":

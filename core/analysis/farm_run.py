@@ -1,14 +1,16 @@
 """Run a farm: hand every trace (and every range of a big one) to an engine, gather the results.
 
-One task per trace; a task that finds its trace too big returns a plan and its ranges go out as
-new tasks. Results are stored by trace and first frame, so a task run twice (Dask re-runs the
+Small traces go out in batches (one task checks several, see ``farm_plan.plan_batches``); a task
+that finds its trace too big returns a plan and the trace's ranges go out as tasks of their own. Results are stored by trace and first frame, so a task run twice (Dask re-runs the
 tasks of a worker that died) counts once, and the outcome does not depend on finishing order.
 Ctrl-C (KeyboardInterrupt) cancels the outstanding work and returns what was finished.
 """
 from __future__ import annotations
 
+import os
 import queue
 
+from resweep.core.analysis.farm_plan import plan_batches
 from resweep.core.analysis.farm_report import FarmResults, merge_ranges
 
 
@@ -24,8 +26,8 @@ def run_farm(traces, options, engine, progress=None, missing=()) -> FarmResults:
     for m in missing:
         res.unreadable[m.input] = f"{m.input}: {m.reason}"
     run = _Run(res, options, engine, progress)
-    for t in res.traces:
-        run.submit(t.path)
+    for batch in plan_batches([_size(t.path) for t in res.traces], engine.workers):
+        run.submit([(res.traces[i].path, None) for i in batch])
     try:
         run.drain()
     except KeyboardInterrupt:
@@ -40,15 +42,15 @@ class _Run:
     def __init__(self, res: FarmResults, options, engine, progress):
         self.res, self.options, self.engine, self.progress = res, options, engine, progress
         self.done = queue.Queue()
-        self.live = {}    # future -> (path, frames)
+        self.live = {}    # future -> [(path, frames), ...]
         self.plans = {}   # path -> [(f0, f1), ...]
         self.parts = {}   # path -> {f0: TraceReport}
         self.rows_done = 0
         self.finished = 0  # traces with a report or a reason
 
-    def submit(self, path, frames=None):
-        fut = self.engine.submit(path, self.options, frames)
-        self.live[fut] = (path, frames)
+    def submit(self, jobs):
+        fut = self.engine.submit(jobs, self.options)
+        self.live[fut] = jobs
         fut.add_done_callback(self.done.put)
 
     def drain(self):
@@ -59,9 +61,13 @@ class _Run:
                 continue
             if fut not in self.live:
                 continue
-            path, frames = self.live.pop(fut)
-            part, reason = self.engine.outcome(fut)
-            self.take(path, part, reason)
+            jobs = self.live.pop(fut)
+            parts, reason = self.engine.outcome(fut)
+            if reason is not None:  # the whole task failed: every trace in it gets the reason
+                for path, _ in jobs:
+                    self.take(path, None, reason)
+            for part in parts or ():
+                self.take(part.path, part, None)
             if self.progress is not None:
                 self.progress(self.finished, len(self.res.traces), self.rows_done)
 
@@ -78,9 +84,11 @@ class _Run:
         elif part is None or part.report is None and part.plan is None:
             return  # cancelled: not checked
         elif part.plan is not None:
+            if path in self.plans:
+                return  # the same plan again, from a task that ran twice
             self.plans[path] = [tuple(r) for r in part.plan]
             for r in self.plans[path]:
-                self.submit(path, r)
+                self.submit([(path, r)])
         elif not part.report.cancelled:
             self.rows_done += part.report.entity_frames
             got = self.parts.setdefault(path, {})
@@ -95,3 +103,10 @@ class _Run:
 def _with_path(path: str, reason: str) -> str:
     """Reasons from the reader start with the path; an engine's reason gets it in front."""
     return reason if reason.startswith(str(path)) else f"{path}: {reason}"
+
+
+def _size(path: str) -> int:
+    try:
+        return os.path.getsize(path)
+    except OSError:
+        return 0

@@ -97,6 +97,17 @@ def check_part(path: str, options: FarmOptions, frames: tuple[int, int] | None =
     return PartResult(path, tuple(frames), report=report, seconds=time.perf_counter() - t0)
 
 
+def check_batch(jobs, options: FarmOptions, should_stop=None) -> list[PartResult]:
+    """:func:`check_part` for each ``(path, frames)`` of ``jobs`` in turn (one task for many small
+    traces); stops early, leaving the rest out of the result, when ``should_stop()`` is True."""
+    out = []
+    for path, frames in jobs:
+        if should_stop is not None and should_stop():
+            break
+        out.append(check_part(path, options, frames, should_stop))
+    return out
+
+
 def _plan(trace, options: FarmOptions):
     from resweep.core.analysis.farm_plan import plan_ranges
     return plan_ranges(trace.frame_count, trace.entity_count, trace.block_frames(), options.range_rows)

@@ -11,7 +11,7 @@ import pytest
 
 from farm_traces import EDIT_FRAMES, soak_run
 from resweep.core import SolverSettings, check_trace, open_trace
-from resweep.core.analysis.farm_plan import plan_ranges
+from resweep.core.analysis.farm_plan import plan_batches, plan_ranges
 from resweep.core.analysis.farm_report import merge_ranges
 
 SPLITS = [
@@ -88,3 +88,14 @@ def test_plan_covers_every_frame_once_on_block_starts(F, N, step, rows):
         assert len(plan) > 1
         sizes = [f1 - f0 for f0, f1 in plan]
         assert max(sizes[:-1]) - min(sizes[:-1], default=0) == 0  # equal ranges, the last one shorter
+
+
+@pytest.mark.parametrize("sizes,workers,want", [
+    ([1] * 10, 1, [range(0, 3), range(3, 6), range(6, 9), range(9, 10)]),  # <= 10 / (4 x 1) per batch
+    ([5, 5, 5, 5, 30, 5], 1, [range(0, 2), range(2, 4), range(4, 5), range(5, 6)]),  # bytes cap 10
+    ([50] + [1] * 7, 1, [range(0, 1), range(1, 3), range(3, 5), range(5, 7), range(7, 8)]),  # big file alone
+    ([0] * 200, 2, [range(i, i + 25) for i in range(0, 200, 25)]),          # 200 / 8 = 25 per batch
+    ([], 3, []),
+])
+def test_batches_cover_the_traces_in_order(sizes, workers, want):
+    assert plan_batches(sizes, workers, max_bytes=10, max_count=64) == want

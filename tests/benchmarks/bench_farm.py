@@ -1,0 +1,112 @@
+"""Farms: many small traces on the local pool, and one big trace split across workers (on demand).
+
+    python tests/benchmarks/bench_farm.py [--small 1000] [--workers 2] [--repeat 3]
+
+1. ``--small`` traces of 1,000 entity-frames each (10 entities x 100 frames, cut from one yardstick
+   trace with our writer) checked as a folder on a local pool of ``--workers`` processes, against
+   the uncut trace checked by ``resweep check`` (target: the farm reaches >= 70% of its
+   entity-frames per second). Whole processes, wall clock, cluster start included; the farm's own
+   time (its JSON ``farm.seconds``, from the first task to the last result) is shown beside it.
+2. One yardstick trace of 200 entities x 30000 frames (6 M entity-frames) split into frame ranges
+   on 2 local workers (1 solver thread each) against 1 worker with 1 thread (target >= 1.6x); the
+   plain 2-thread ``resweep check`` is shown too, and the split counts are checked against it.
+"""
+from __future__ import annotations
+
+import json
+import sys
+import tempfile
+from pathlib import Path
+
+from _bench import Row, common_args, make_trace, median_timed, print_table, rate, resweep_cmd
+
+
+def small_traces(args, whole: Path, count: int, frames: int = 100) -> Path:
+    """``count`` traces of ``frames`` frames each, cut from ``whole`` (same world), made once."""
+    folder = args.workdir / f"farm_small_{count}"
+    if len(list(folder.glob("*.h5"))) == count:
+        return folder
+    from resweep.core import open_trace, write_trace
+    from resweep.core.world.shapes import IMPLICIT_TYPES
+    folder.mkdir(parents=True, exist_ok=True)
+    with open_trace(whole) as tr:
+        for i in range(count):
+            b = tr.frames(i * frames, (i + 1) * frames)
+            write_trace(folder / f"run_{i:05d}.h5", chunk_size=tr.chunk_size, chunk_origin=tr.chunk_origin,
+                        chunk_blocks=tr.chunk_blocks,
+                        shapes=None if tr.type_count == IMPLICIT_TYPES else tr.shapes, edits=tr.edits, entity_ids=tr.ids,
+                        half_extents=tr.half_extents, time=tr.time[b.f0:b.f1], start=b.start, motion=b.motion,
+                        end=b.end, active=b.active, voxel_size=tr.voxel_size, up_axis=tr.up_axis,
+                        frame_dtype=tr.frame_dtype)
+    return folder
+
+
+def farm_run(cmd, repeat):
+    """Median wall seconds of ``cmd`` (a farm writing JSON to a temp file) and its farm section."""
+    with tempfile.TemporaryDirectory() as tmp:
+        out = Path(tmp) / "farm.json"
+        wall, _, _ = median_timed(cmd + ["--json", str(out)], repeat)
+        return wall, json.loads(out.read_text())["farm"]
+
+
+def run_small(args) -> list[Row]:
+    n = args.small * 1000
+    whole = make_trace(args, f"farm_concat_10x{args.small * 100}.h5", entities=10, frames=args.small * 100)
+    folder = small_traces(args, whole, args.small)
+    one = resweep_cmd(whole, "--quiet")
+    many = resweep_cmd(folder, "--workers", args.workers, "--summary-only", "--quiet")
+    median_timed(one, 1)
+    t_one, _, _ = median_timed(one, args.repeat)
+    t_many, farm = farm_run(many, args.repeat)
+    assert farm["checked"] == args.small and farm["entity_frames"] == n, farm
+    return [
+        Row("one trace, 1 M entity-frames", f"{t_one:.2f} s ({rate(n, t_one)})", "", " ".join(map(str, one))),
+        Row(f"{args.small} traces of 1,000 on {args.workers} workers", f"{t_many:.2f} s ({rate(n, t_many)}); "
+            f"farm alone {farm['seconds']:.2f} s", "", " ".join(map(str, many))),
+        Row("farm rate / one-trace rate", f"{t_one / t_many:.2f} (farm alone {t_one / farm['seconds']:.2f})",
+            ">= 0.70"),
+    ]
+
+
+def run_split(args) -> list[Row]:
+    trace = make_trace(args, "resolve_200x30000.h5", entities=200, frames=30000)
+    n = 200 * 30000
+    two = resweep_cmd(trace, "--workers", 2, "--threads", 1, "--summary-only", "--quiet")
+    one = resweep_cmd(trace, "--workers", 1, "--threads", 1, "--summary-only", "--quiet")
+    plain = resweep_cmd(trace, "--quiet", "--json", "-", "--limit", "0")
+    median_timed(plain, 1)
+    t_plain, _, out = median_timed(plain, args.repeat)
+    t_one, farm1 = farm_run(one, args.repeat)
+    t_two, farm2 = farm_run(two, args.repeat)
+    counts = json.loads(out)["traces"][0]["counts"]
+    assert farm1["counts"] == farm2["counts"] == counts, (farm1["counts"], farm2["counts"], counts)
+    return [
+        Row("6 M split, 1 worker x 1 thread", f"{t_one:.2f} s ({rate(n, t_one)}); farm alone {farm1['seconds']:.2f} s",
+            "", " ".join(map(str, one))),
+        Row("6 M split, 2 workers x 1 thread", f"{t_two:.2f} s ({rate(n, t_two)}); farm alone {farm2['seconds']:.2f} s",
+            "", " ".join(map(str, two))),
+        Row("speed-up 2 workers / 1", f"{t_one / t_two:.2f}x (farm alone {farm1['seconds'] / farm2['seconds']:.2f}x)",
+            ">= 1.6x"),
+        Row("plain resweep check (2 threads, one process)", f"{t_plain:.2f} s ({rate(n, t_plain)})", "",
+            " ".join(map(str, plain))),
+        Row("counts: split == whole", "identical"),
+    ]
+
+
+def main(argv=None) -> int:
+    ap = common_args(__doc__.splitlines()[0])
+    ap.add_argument("--small", type=int, default=1000, help="small traces (1,000 entity-frames each)")
+    ap.add_argument("--workers", type=int, default=2)
+    ap.add_argument("--only", choices=("small", "split"), default=None)
+    args = ap.parse_args(argv)
+    rows = []
+    if args.only in (None, "small"):
+        rows += run_small(args)
+    if args.only in (None, "split"):
+        rows += run_split(args)
+    print_table("farms", rows)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
