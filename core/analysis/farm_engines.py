@@ -69,8 +69,12 @@ class DaskEngine:
             if address:
                 self.client = Client(address, timeout=timeout)
             else:
-                self._cluster = LocalCluster(n_workers=workers or os.cpu_count() or 1, threads_per_worker=1,
-                                             processes=True, dashboard_address=":0")
+                import dask
+                # Dask's sampling profiler wakes every worker 100 times a second; on a busy machine
+                # that costs the solver a noticeable share of its core.
+                with dask.config.set({"distributed.worker.profile.enabled": False}):
+                    self._cluster = LocalCluster(n_workers=workers or os.cpu_count() or 1, threads_per_worker=1,
+                                                 processes=True, dashboard_address=":0")
                 self.client = Client(self._cluster)
         except (OSError, TimeoutError, ValueError, RuntimeError) as exc:
             self.close()

@@ -18,7 +18,9 @@ import sys
 import tempfile
 from pathlib import Path
 
-from _bench import Row, common_args, make_trace, median_timed, print_table, rate, resweep_cmd
+import statistics
+
+from _bench import Row, common_args, cpu_timed, make_trace, median_timed, print_table, rate, resweep_cmd
 
 
 def small_traces(args, whole: Path, count: int, frames: int = 100) -> Path:
@@ -41,12 +43,18 @@ def small_traces(args, whole: Path, count: int, frames: int = 100) -> Path:
     return folder
 
 
+def measure(cmd, repeat):
+    """Median wall and median CPU seconds (the process tree) of ``cmd`` over ``repeat`` runs."""
+    runs = [cpu_timed(cmd) for _ in range(repeat)]
+    return statistics.median(r[0] for r in runs), statistics.median(r[1] for r in runs)
+
+
 def farm_run(cmd, repeat):
-    """Median wall seconds of ``cmd`` (a farm writing JSON to a temp file) and its farm section."""
+    """Median wall and CPU seconds of ``cmd`` (a farm writing JSON to a temp file), its farm section."""
     with tempfile.TemporaryDirectory() as tmp:
         out = Path(tmp) / "farm.json"
-        wall, _, _ = median_timed(cmd + ["--json", str(out)], repeat)
-        return wall, json.loads(out.read_text())["farm"]
+        wall, cpu = measure(cmd + ["--json", str(out)], repeat)
+        return wall, cpu, json.loads(out.read_text())["farm"]
 
 
 def run_small(args) -> list[Row]:
@@ -56,15 +64,16 @@ def run_small(args) -> list[Row]:
     one = resweep_cmd(whole, "--quiet")
     many = resweep_cmd(folder, "--workers", args.workers, "--summary-only", "--quiet")
     median_timed(one, 1)
-    t_one, _, _ = median_timed(one, args.repeat)
-    t_many, farm = farm_run(many, args.repeat)
+    t_one, c_one = measure(one, args.repeat)
+    t_many, c_many, farm = farm_run(many, args.repeat)
     assert farm["checked"] == args.small and farm["entity_frames"] == n, farm
     return [
-        Row("one trace, 1 M entity-frames", f"{t_one:.2f} s ({rate(n, t_one)})", "", " ".join(map(str, one))),
+        Row("one trace, 1 M entity-frames", f"{t_one:.2f} s ({rate(n, t_one)}); CPU {c_one:.2f} s", "",
+            " ".join(map(str, one))),
         Row(f"{args.small} traces of 1,000 on {args.workers} workers", f"{t_many:.2f} s ({rate(n, t_many)}); "
-            f"farm alone {farm['seconds']:.2f} s", "", " ".join(map(str, many))),
-        Row("farm rate / one-trace rate", f"{t_one / t_many:.2f} (farm alone {t_one / farm['seconds']:.2f})",
-            ">= 0.70"),
+            f"CPU {c_many:.2f} s; farm alone {farm['seconds']:.2f} s", "", " ".join(map(str, many))),
+        Row("farm rate / one-trace rate", f"wall {t_one / t_many:.2f}, CPU {c_one / c_many:.2f} "
+            f"(farm alone {t_one / farm['seconds']:.2f})", ">= 0.70"),
     ]
 
 
@@ -76,15 +85,15 @@ def run_split(args) -> list[Row]:
     plain = resweep_cmd(trace, "--quiet", "--json", "-", "--limit", "0")
     median_timed(plain, 1)
     t_plain, _, out = median_timed(plain, args.repeat)
-    t_one, farm1 = farm_run(one, args.repeat)
-    t_two, farm2 = farm_run(two, args.repeat)
+    t_one, c_one, farm1 = farm_run(one, args.repeat)
+    t_two, c_two, farm2 = farm_run(two, args.repeat)
     counts = json.loads(out)["traces"][0]["counts"]
     assert farm1["counts"] == farm2["counts"] == counts, (farm1["counts"], farm2["counts"], counts)
     return [
-        Row("6 M split, 1 worker x 1 thread", f"{t_one:.2f} s ({rate(n, t_one)}); farm alone {farm1['seconds']:.2f} s",
-            "", " ".join(map(str, one))),
-        Row("6 M split, 2 workers x 1 thread", f"{t_two:.2f} s ({rate(n, t_two)}); farm alone {farm2['seconds']:.2f} s",
-            "", " ".join(map(str, two))),
+        Row("6 M split, 1 worker x 1 thread", f"{t_one:.2f} s ({rate(n, t_one)}); CPU {c_one:.2f} s; "
+            f"farm alone {farm1['seconds']:.2f} s", "", " ".join(map(str, one))),
+        Row("6 M split, 2 workers x 1 thread", f"{t_two:.2f} s ({rate(n, t_two)}); CPU {c_two:.2f} s; "
+            f"farm alone {farm2['seconds']:.2f} s", "", " ".join(map(str, two))),
         Row("speed-up 2 workers / 1", f"{t_one / t_two:.2f}x (farm alone {farm1['seconds'] / farm2['seconds']:.2f}x)",
             ">= 1.6x"),
         Row("plain resweep check (2 threads, one process)", f"{t_plain:.2f} s ({rate(n, t_plain)})", "",
