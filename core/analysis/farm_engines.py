@@ -11,7 +11,9 @@ reported unreadable with a ``KilledWorker`` reason), so no trace is lost to one 
 """
 from __future__ import annotations
 
+import contextlib
 import os
+import signal
 import threading
 from concurrent.futures import CancelledError, ThreadPoolExecutor
 
@@ -72,7 +74,7 @@ class DaskEngine:
                 import dask
                 # Dask's sampling profiler wakes every worker 100 times a second; on a busy machine
                 # that costs the solver a noticeable share of its core.
-                with dask.config.set({"distributed.worker.profile.enabled": False}):
+                with dask.config.set({"distributed.worker.profile.enabled": False}), _workers_ignore_ctrl_c():
                     self._cluster = LocalCluster(n_workers=workers or os.cpu_count() or 1, threads_per_worker=1,
                                                  processes=True, dashboard_address=":0")
                 self.client = Client(self._cluster)
@@ -105,3 +107,18 @@ class DaskEngine:
             client.close()
         if self._cluster is not None:
             self._cluster.close()
+
+
+@contextlib.contextmanager
+def _workers_ignore_ctrl_c():
+    """Start worker processes with SIGINT ignored (an ignored signal stays ignored in a child), so
+    Ctrl-C in a terminal, which reaches the whole process group, interrupts only this process: it
+    cancels the work and closes the cluster, instead of every worker dying with a traceback."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    old = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, old)

@@ -117,8 +117,28 @@ def _check(trace, options: FarmOptions, frames, should_stop):
     from resweep.core.check.rows import warm_up
     from resweep.core.check.stream import check_trace
     key = (options.settings.precision, str(trace.frame_dtype))
-    if key not in _warmed:  # compiles or loads under the cache's file lock, once per process
-        warm_up(options.settings.precision, trace.frame_dtype)
+    if key not in _warmed:
+        _warm(*key, warm_up)
         _warmed.add(key)
     return check_trace(trace, options.settings, limit=options.limit, should_stop=should_stop,
                        frames=tuple(frames))
+
+
+def _warm(precision: str, frame_dtype: str, warm_up) -> None:
+    """Make this process's kernels ready, once.
+
+    The first worker to need a precision compiles (or loads) the kernels under the cache folder's
+    file lock and leaves a marker; later workers see the marker and let the kernels load on first
+    use without the lock (numba writes cache entries by atomic rename, so a complete entry is safe
+    to read). Holding the lock only to load would queue every worker of a cluster that shares one
+    cache folder behind each other's 1-2 s loads.
+    """
+    from resweep.core.jit.nb_jit import CACHE_DIR
+    marker = CACHE_DIR / f".ready-{precision}-{frame_dtype}"
+    if marker.exists():
+        return
+    warm_up(precision, frame_dtype)
+    try:
+        marker.touch()
+    except OSError:  # a read-only cache folder: every worker keeps taking the lock
+        pass

@@ -16,6 +16,7 @@ from __future__ import annotations
 import json
 import sys
 import tempfile
+import time
 from pathlib import Path
 
 import statistics
@@ -102,17 +103,65 @@ def run_split(args) -> list[Row]:
     ]
 
 
+def warm_farm(paths, workers: int, repeat: int):
+    """Median wall seconds of a farm over ``paths`` on an already started and warmed local cluster
+    of ``workers`` processes (1 solver thread each): the steady state of a long-lived cluster,
+    without process start-up and kernel loading."""
+    from resweep.core import SolverSettings
+    from resweep.core.analysis.farm_engines import DaskEngine
+    from resweep.core.analysis.farm_inputs import find_traces
+    from resweep.core.analysis.farm_run import run_farm
+    from resweep.core.analysis.farm_task import FarmOptions
+    traces, _ = find_traces([str(p) for p in paths])
+    opts = FarmOptions(SolverSettings(), limit=0, threads=1)
+    engine = DaskEngine(workers=workers)
+    try:
+        engine.client.run(_warm_worker)
+        times = []
+        for _ in range(repeat):
+            t0 = time.perf_counter()
+            res = run_farm(traces, opts, engine)
+            times.append(time.perf_counter() - t0)
+        return statistics.median(times), res
+    finally:
+        engine.close()
+
+
+def _warm_worker():
+    from resweep.core.check.rows import warm_up
+    warm_up("float64", "float32")
+    warm_up("float64", "float64")
+
+
+def run_warm(args) -> list[Row]:
+    big = make_trace(args, "resolve_200x30000.h5", entities=200, frames=30000)
+    small = args.workdir / f"farm_small_{args.small}"
+    t1, r1 = warm_farm([big], 1, args.repeat)
+    t2, r2 = warm_farm([big], 2, args.repeat)
+    assert r1.reports[str(big)].counts == r2.reports[str(big)].counts
+    s2, rs = warm_farm([small], 2, args.repeat)
+    w1, rw = warm_farm([args.workdir / f"farm_concat_10x{args.small * 100}.h5"], 2, args.repeat)
+    return [
+        Row("warm cluster: 6 M split, 1 worker / 2 workers", f"{t1:.2f} s / {t2:.2f} s = {t1 / t2:.2f}x", ">= 1.6x",
+            "bench_farm.py --only warm"),
+        Row(f"warm cluster, 2 workers: {args.small} small traces / one 1 M trace",
+            f"{s2:.2f} s / {w1:.2f} s: rate ratio {w1 / s2:.2f}", ">= 0.70", "bench_farm.py --only warm"),
+    ]
+
+
 def main(argv=None) -> int:
     ap = common_args(__doc__.splitlines()[0])
     ap.add_argument("--small", type=int, default=1000, help="small traces (1,000 entity-frames each)")
     ap.add_argument("--workers", type=int, default=2)
-    ap.add_argument("--only", choices=("small", "split"), default=None)
+    ap.add_argument("--only", choices=("small", "split", "warm"), default=None)
     args = ap.parse_args(argv)
     rows = []
     if args.only in (None, "small"):
         rows += run_small(args)
     if args.only in (None, "split"):
         rows += run_split(args)
+    if args.only in (None, "warm"):
+        rows += run_warm(args)
     print_table("farms", rows)
     return 0
 
