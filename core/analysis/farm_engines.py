@@ -12,6 +12,7 @@ reported unreadable with a ``KilledWorker`` reason), so no trace is lost to one 
 from __future__ import annotations
 
 import contextlib
+import logging
 import os
 import signal
 import threading
@@ -76,7 +77,8 @@ class DaskEngine:
                 # that costs the solver a noticeable share of its core.
                 with dask.config.set({"distributed.worker.profile.enabled": False}), _workers_ignore_ctrl_c():
                     self._cluster = LocalCluster(n_workers=workers or os.cpu_count() or 1, threads_per_worker=1,
-                                                 processes=True, dashboard_address=":0")
+                                                 processes=True, dashboard_address=":0",
+                                                 silence_logs=logging.CRITICAL)  # reasons reach the summary
                 self.client = Client(self._cluster)
         except (OSError, TimeoutError, ValueError, RuntimeError) as exc:
             self.close()
