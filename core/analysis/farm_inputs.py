@@ -55,7 +55,7 @@ def find_traces(inputs) -> tuple[list[TraceInput], list[Missing]]:
         elif os.path.isdir(text):
             items = _from_folder(text)
             if not items:
-                missing.append(Missing(text, f"the folder holds no trace ({', '.join(TRACE_SUFFIXES)} file)"))
+                missing.append(Missing(text, f"the directory holds no trace file ({', '.join(TRACE_SUFFIXES)})"))
         elif os.path.exists(text):
             items = [TraceInput(text, Path(text).name)]
         else:
