@@ -63,9 +63,11 @@ class _Run:
                 continue
             jobs = self.live.pop(fut)
             parts, reason = self.engine.outcome(fut)
-            if reason is not None:  # the whole task failed: every trace in it gets the reason
-                for path, _ in jobs:
-                    self.take(path, None, reason)
+            if reason is not None and len(jobs) > 1:  # a batch failed: retry its traces one by one,
+                for job in jobs:                        # so one bad trace cannot sink its batch-mates
+                    self.submit([job])
+            elif reason is not None:
+                self.take(jobs[0][0], None, reason)
             for part in parts or ():
                 self.take(part.path, part, None)
             if self.progress is not None:

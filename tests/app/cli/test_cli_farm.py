@@ -88,3 +88,26 @@ def test_interrupt_keeps_the_finished_traces(night):
 def test_no_trace_found_is_a_usage_error(tmp_path):
     r = _cli(tmp_path / "empty*", "--workers", "1")
     assert r.returncode == 2 and "matches no file" in r.stderr and "no trace" in r.stderr
+
+
+def test_a_trace_that_breaks_its_task_does_not_sink_its_batch(night, monkeypatch):
+    """A task that raises (a bug, or a worker dying on one trace) is retried trace by trace."""
+    from resweep.core.analysis import farm_run, farm_task
+    traces, _ = find_traces([str(night)])
+    real = farm_task.check_part
+    victim = traces[1].path
+
+    def flaky(path, *a, **kw):
+        if path == victim:
+            raise RuntimeError("boom")
+        return real(path, *a, **kw)
+
+    monkeypatch.setattr(farm_task, "check_part", flaky)
+    monkeypatch.setattr(farm_run, "plan_batches", lambda sizes, workers: [range(len(sizes))])
+    engine = ThreadEngine()
+    try:
+        res = run_farm(traces, FarmOptions(SolverSettings(), limit=5), engine)
+    finally:
+        engine.close()
+    assert sorted(res.reports) == sorted(t.path for t in traces if t.path != victim)
+    assert list(res.unreadable) == [victim] and "internal error: RuntimeError: boom" in res.unreadable[victim]
