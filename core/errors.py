@@ -44,3 +44,31 @@ class SettingsError(ResweepError):
         self.value = value
         self.reason = reason
         super().__init__(f"{name}={value!r}: {reason}")
+
+
+class ReportFileError(ResweepError):
+    """A saved JSON report (e.g. a farm baseline) is unreadable or not a resweep report.
+
+    Attributes:
+        path: the file as the user named it.
+        reason: what is wrong, in plain words, without the path.
+    """
+
+    def __init__(self, path, reason: str):
+        self.path = str(path)
+        self.reason = reason
+        super().__init__(f"{self.path}: {reason}")
+
+
+class ClusterError(ResweepError):
+    """The farm's engine cannot start or cannot reach its cluster.
+
+    Attributes:
+        address: the scheduler address, or "local" for the local pool.
+        reason: what went wrong, in plain words.
+    """
+
+    def __init__(self, address: str, reason: str):
+        self.address = str(address)
+        self.reason = reason
+        super().__init__(f"{self.address}: {reason}")

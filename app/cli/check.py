@@ -137,6 +137,9 @@ def open_all(paths) -> list[str]:
 
 
 def run(args) -> int:
+    from resweep.app.cli import farm
+    if farm.wanted(args):  # folders, globs or farm options: many traces on a pool or a cluster
+        return farm.run(args)
     settings = SolverSettings(tolerance=args.tolerance, skin=args.skin, passes=args.passes,
                               precision=args.precision)
     fail_on = DEFAULT_FAIL_ON if args.fail_on is None else args.fail_on

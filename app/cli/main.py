@@ -76,6 +76,20 @@ def _size_arg(text: str):
     return w, h
 
 
+def farm_opts(c):
+    """Options of ``resweep check`` over many traces (folders, globs; see README "Many traces")."""
+    g = c.add_argument_group("many traces (TRACE may also be a folder, searched recursively, or a glob)")
+    g.add_argument("--workers", type=int, default=None, metavar="N",
+                   help="local worker processes (default: one per core; 1 checks in this process)")
+    g.add_argument("--scheduler", metavar="ADDRESS", help="run on the Dask cluster at ADDRESS (tcp://host:port)")
+    g.add_argument("--summary-only", action="store_true",
+                   help="only the farm summary and per-trace counts (no divergence lists)")
+    g.add_argument("--baseline", metavar="FILE.json",
+                   help="a saved --json report; exit 1 when a failing kind appears or grows in a trace")
+    g.add_argument("--kernel-cache", metavar="DIR",
+                   help="kernel cache folder for the workers (default: each worker's own)")
+
+
 def build_parser() -> argparse.ArgumentParser:
     from resweep.core.solve.settings import PRECISIONS, SolverSettings
     p = _Parser(prog="resweep", description="Re-solve recorded voxel collision traces with a reference "
@@ -116,6 +130,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--threads", type=int, default=None, metavar="N",
                    help="solver threads (default: all cores; more than the cores is clamped with a notice)")
     c.add_argument("--quiet", action="store_true", help="no progress bar and no summary")
+    farm_opts(c)
 
     i = sub.add_parser("info", help="describe a trace and list validation problems")
     i.add_argument("trace", metavar="TRACE")

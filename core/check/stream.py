@@ -95,7 +95,8 @@ def pass_list(rows: RowResults, i: int) -> list:
 
 
 def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit: int = 1000,
-                progress=None, on_block=None, should_stop=None, rows_per_block: int = 1 << 17) -> TraceReport:
+                progress=None, on_block=None, should_stop=None, rows_per_block: int = 1 << 17,
+                frames: tuple[int, int] | None = None) -> TraceReport:
     """Re-solve every active entity-frame of ``trace`` and classify the recorded run.
 
     Frames stream in blocks of about ``rows_per_block`` entity-frames (the next block is read
@@ -104,6 +105,12 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
     block, ``on_block(BlockResult)`` per solved segment, and ``should_stop()`` may return True to
     cancel (the report then has ``cancelled`` set). World edits are applied as the stream passes
     their frame (:meth:`VoxelWorld.advance_to`), never by rebuilding the world.
+
+    ``frames=(f0, f1)`` checks only frames ``[f0, f1)`` (a farm splits big traces so): the world
+    starts at frame ``f0`` with every earlier edit applied, and the gap of frame ``f0`` is measured
+    from the recorded end of frame ``f0 - 1``, exactly as a whole-trace check measures it, so the
+    counts of consecutive ranges add up to the whole trace's and their divergence lists, joined in
+    range order, are its list.
     """
     report = TraceReport(trace.path, trace.frame_count, trace.entity_count, 0)
     world = trace.world()
@@ -111,11 +118,15 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
     dt = settings.dtype
     edit_frames = world.edit_frames()
     N = trace.entity_count
+    f0, f1 = (0, trace.frame_count) if frames is None else frames
     prev_end = np.zeros((N, 3))  # float64 recorded end of the frame before the block
     prev_active = np.zeros(N, bool)
     has_prev = False
+    if f0 > 0:  # a range: the frame before it closes the first gap
+        before = trace.frames(f0 - 1, f0)
+        prev_end, prev_active, has_prev = np.asarray(before.end[-1], np.float64), before.active[-1].copy(), True
     buf = _Buffers(dt, settings.passes, keep_rows=on_block is None)
-    for blk in trace.iter_frames(rows_per_block, prefetch=True):
+    for blk in trace.iter_frames(rows_per_block, f0, f1, prefetch=True):
         if should_stop is not None and should_stop():
             report.cancelled = True
             break

@@ -47,8 +47,7 @@ import numpy as np  # noqa: E402
 from numba import njit  # noqa: E402
 from numba.core import caching  # noqa: E402
 
-#: Environment variable naming the kernel cache folder (a shared or per-node folder on a cluster).
-CACHE_ENV = "RESWEEP_CACHE_DIR"
+from resweep.core.jit.cache_env import CACHE_ENV  # noqa: E402,F401  (re-exported)
 _CORE = Path(__file__).resolve().parents[1]
 
 

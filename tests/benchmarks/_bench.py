@@ -62,8 +62,8 @@ def yardstick_trace(args, frames: int | None = None) -> Path:
     return make_trace(args, f"resolve_{entities}x{frames}.h5", entities=entities, frames=frames)
 
 
-def timed(cmd: list[str], env=None) -> tuple[float, int, str]:
-    """Run ``cmd`` to completion: (wall seconds, peak RSS in bytes of that process, stdout)."""
+def _spawn(cmd: list[str], env=None):
+    """Run ``cmd`` to completion: (wall seconds, resource usage of it and its reaped children, stdout)."""
     t0 = time.perf_counter()
     proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env)
     out = proc.stdout.read()
@@ -73,7 +73,21 @@ def timed(cmd: list[str], env=None) -> tuple[float, int, str]:
     proc.returncode = os.waitstatus_to_exitcode(status)
     if proc.returncode not in (0, 1):  # resweep check exits 1 when it finds failing divergences
         raise RuntimeError(f"{' '.join(cmd)} failed ({proc.returncode}): {err.decode(errors='replace')}")
-    return wall, usage.ru_maxrss * 1024, out.decode(errors="replace")
+    return wall, usage, out.decode(errors="replace")
+
+
+def timed(cmd: list[str], env=None) -> tuple[float, int, str]:
+    """Run ``cmd`` to completion: (wall seconds, peak RSS in bytes of that process, stdout)."""
+    wall, usage, out = _spawn(cmd, env)
+    return wall, usage.ru_maxrss * 1024, out
+
+
+def cpu_timed(cmd: list[str], env=None) -> tuple[float, float]:
+    """Run ``cmd``: (wall seconds, CPU seconds of the process and every descendant it reaped, such as
+    the worker processes of a local Dask cluster). CPU seconds hold up better than wall time on
+    a machine shared with other work."""
+    wall, usage, _ = _spawn(cmd, env)
+    return wall, usage.ru_utime + usage.ru_stime
 
 
 def median_timed(cmd: list[str], repeat: int, env=None) -> tuple[float, int, str]:

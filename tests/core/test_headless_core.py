@@ -71,6 +71,12 @@ def test_core_import_and_info_load_no_numba():
                         "'h5py' in sys.modules)"], capture_output=True, text=True, timeout=120)
     assert r.returncode == 0, r.stderr
     assert r.stdout.split() == ["False", "False"]
+    farm = ("import sys, resweep.core; from resweep.core.analysis import farm_run, farm_report, farm_baseline, "
+            "farm_inputs, farm_task, farm_plan; from resweep.app.cli import farm; "
+            "print(*(m in sys.modules for m in ('numba', 'h5py', 'dask', 'distributed')))")
+    r = subprocess.run([sys.executable, "-c", farm], capture_output=True, text=True, timeout=120)
+    assert r.returncode == 0, r.stderr
+    assert r.stdout.split() == ["False"] * 4  # farm clients and schedulers stay light; Dask loads on use
     r = subprocess.run([sys.executable, "-c", INFO_PROBE, str(ROOT / "sample_traces" / "quarry.h5")],
                        capture_output=True, text=True, timeout=120)
     assert r.returncode == 0, r.stderr

@@ -1,0 +1,126 @@
+"""Where farm tasks run: one in-process thread, a local Dask cluster, or a remote Dask scheduler.
+
+Every engine takes :func:`farm_task.check_batch` calls and hands back futures that call their done
+callbacks once; :meth:`outcome` turns a finished future into ``([PartResult, ...], None)`` or
+``(None, one-line reason)`` (``(None, None)`` when it was cancelled). Dask is imported only when a
+Dask engine is made, so importing the core never loads it.
+
+Dask runs each task on some worker; when a worker process dies mid-task, its scheduler hands the
+task to another worker (up to ``distributed.scheduler.allowed-failures`` times, then the trace is
+reported unreadable with a ``KilledWorker`` reason), so no trace is lost to one crash.
+"""
+from __future__ import annotations
+
+import contextlib
+import logging
+import os
+import signal
+import threading
+from concurrent.futures import CancelledError, ThreadPoolExecutor
+
+from resweep.core.analysis.farm_task import check_batch
+from resweep.core.errors import ClusterError
+
+
+def _reason(exc: BaseException) -> str:
+    text = " ".join(str(exc).split())
+    return f"{type(exc).__name__}: {text}"[:400]
+
+
+class ThreadEngine:
+    """Tasks run one at a time on a thread of this process (``--workers 1``: nothing to start, the
+    solver keeps all its threads); cancelling stops the running check at its next frame block."""
+
+    workers = 1
+    name = "this process"
+
+    def __init__(self):
+        self._pool = ThreadPoolExecutor(1, thread_name_prefix="resweep-farm")
+        self._stop = threading.Event()
+
+    def submit(self, jobs, options):
+        return self._pool.submit(check_batch, jobs, options, self._stop.is_set)
+
+    def outcome(self, fut):
+        try:
+            return fut.result(), None
+        except CancelledError:
+            return None, None
+        except Exception as exc:  # a bug while checking this trace: the batch goes on
+            return None, f"internal error: {_reason(exc)}"
+
+    def cancel(self, futures):
+        self._stop.set()
+        for f in futures:
+            f.cancel()
+
+    def close(self):
+        self._pool.shutdown(wait=True, cancel_futures=True)
+
+
+class DaskEngine:
+    """Tasks on a Dask cluster: ``address`` of a running scheduler, or a LocalCluster of
+    ``workers`` processes with one task thread each (started here, closed by :meth:`close`)."""
+
+    def __init__(self, address: str | None = None, workers: int | None = None, timeout: float = 20.0):
+        try:
+            from distributed import Client, LocalCluster
+        except ImportError as exc:  # pragma: no cover - a dependency
+            raise ClusterError(address or "local", f"dask.distributed is not installed ({exc})") from None
+        self._cluster = None
+        try:
+            if address:
+                self.client = Client(address, timeout=timeout)
+            else:
+                import dask
+                # Dask's sampling profiler wakes every worker 100 times a second; on a busy machine
+                # that costs the solver a noticeable share of its core.
+                with dask.config.set({"distributed.worker.profile.enabled": False}), _workers_ignore_ctrl_c():
+                    self._cluster = LocalCluster(n_workers=workers or os.cpu_count() or 1, threads_per_worker=1,
+                                                 processes=True, dashboard_address=":0",
+                                                 silence_logs=logging.CRITICAL)  # reasons reach the summary
+                self.client = Client(self._cluster)
+        except (OSError, TimeoutError, ValueError, RuntimeError) as exc:
+            self.close()
+            raise ClusterError(address or "local", f"cannot start or reach the cluster: {_reason(exc)}") from None
+        self.name = address or f"local cluster, {workers} worker processes"
+        self.workers = max(1, len(self.client.scheduler_info().get("workers", {})))
+
+    def submit(self, jobs, options):
+        return self.client.submit(check_batch, jobs, options, pure=False)
+
+    def outcome(self, fut):
+        if fut.status == "cancelled":
+            return None, None
+        try:
+            return fut.result(), None
+        except CancelledError:
+            return None, None
+        except Exception as exc:  # KilledWorker after repeated worker deaths, or a bug in the task
+            return None, f"worker failed: {_reason(exc)}"
+
+    def cancel(self, futures):
+        if futures:
+            self.client.cancel(list(futures), force=True)
+
+    def close(self):
+        client = getattr(self, "client", None)
+        if client is not None:
+            client.close()
+        if self._cluster is not None:
+            self._cluster.close()
+
+
+@contextlib.contextmanager
+def _workers_ignore_ctrl_c():
+    """Start worker processes with SIGINT ignored (an ignored signal stays ignored in a child), so
+    Ctrl-C in a terminal, which reaches the whole process group, interrupts only this process: it
+    cancels the work and closes the cluster, instead of every worker dying with a traceback."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    old = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, old)

@@ -1,0 +1,144 @@
+"""The unit of farm work: check one trace, or one frame range of it, inside a worker process.
+
+Runs wherever the engine puts it (a Dask worker on another machine, a local process, a thread),
+so it takes only plain picklable arguments, configures its own process (kernel cache folder,
+solver threads) and never raises for a bad trace: a trace that cannot be read comes back as a
+:class:`PartResult` with a one-line ``error``. Only unexpected failures raise (the engine records
+them against the trace).
+
+Importing this module loads neither numba nor h5py: a scheduler or client that only unpickles
+results stays light.
+"""
+from __future__ import annotations
+
+import os
+import sys
+import time
+from dataclasses import dataclass, field
+
+from resweep.core.jit.cache_env import CACHE_ENV
+from resweep.core.analysis.farm_plan import RANGE_ROWS
+
+
+@dataclass(frozen=True)
+class FarmOptions:
+    """What every part of a farm is checked with.
+
+    Attributes:
+        settings: SolverSettings (same for every trace).
+        limit: divergences kept per trace (counts stay exact); 0 keeps none (summary only).
+        range_rows: entity-frames per frame range of a split trace (see ``farm_plan``).
+        threads: solver threads per worker; None leaves numba's default (all cores of the node).
+        cache_dir: kernel cache folder for workers; None lets each worker use its own default
+            (``$RESWEEP_CACHE_DIR`` or the user cache folder of the node).
+    """
+
+    settings: object
+    limit: int = 1000
+    range_rows: int = RANGE_ROWS
+    threads: int | None = None
+    cache_dir: str | None = None
+
+
+@dataclass
+class PartResult:
+    """What one task returns.
+
+    Attributes:
+        path: the trace. frames: (f0, f1) range checked, or None when nothing was checked.
+        report: TraceReport of that range (None on error or when a plan is returned).
+        error: one-line reason the trace could not be read, else None.
+        plan: ranges to check as separate tasks when the trace is too big for one (else None).
+        seconds: wall time spent in the task, for the farm's statistics.
+    """
+
+    path: str
+    frames: tuple[int, int] | None = None
+    report: object = None
+    error: str | None = None
+    plan: list = field(default=None)
+    seconds: float = 0.0
+
+
+_warmed: set = set()
+
+
+def configure(options: FarmOptions) -> None:
+    """Point this process at the farm's kernel cache (before any kernel module loads; a process
+    that already loaded kernels keeps them) and set the solver threads of the calling thread."""
+    if options.cache_dir and "resweep.core.jit.nb_jit" not in sys.modules:
+        os.environ[CACHE_ENV] = options.cache_dir
+    if options.threads is not None:
+        import numba
+        numba.set_num_threads(max(1, min(int(options.threads), numba.config.NUMBA_NUM_THREADS)))
+
+
+def check_part(path: str, options: FarmOptions, frames: tuple[int, int] | None = None,
+               should_stop=None) -> PartResult:
+    """Check trace ``path`` whole (``frames`` None) or frames ``[f0, f1)``.
+
+    With ``frames`` None a trace bigger than about 1.5 ``options.range_rows`` entity-frames is not
+    checked here: the result carries the ``plan`` of ranges for the engine to hand out.
+    """
+    t0 = time.perf_counter()
+    configure(options)
+    from resweep.core.errors import TraceFormatError
+    from resweep.core.format.reader import open_trace
+    try:
+        with open_trace(path) as trace:
+            if frames is None:
+                plan = _plan(trace, options)
+                if len(plan) > 1:
+                    return PartResult(path, plan=plan, seconds=time.perf_counter() - t0)
+                frames = (0, trace.frame_count)
+            report = _check(trace, options, frames, should_stop)
+    except TraceFormatError as exc:
+        return PartResult(path, frames, error=exc.one_line(), seconds=time.perf_counter() - t0)
+    return PartResult(path, tuple(frames), report=report, seconds=time.perf_counter() - t0)
+
+
+def check_batch(jobs, options: FarmOptions, should_stop=None) -> list[PartResult]:
+    """:func:`check_part` for each ``(path, frames)`` of ``jobs`` in turn (one task for many small
+    traces); stops early, leaving the rest out of the result, when ``should_stop()`` is True."""
+    out = []
+    for path, frames in jobs:
+        if should_stop is not None and should_stop():
+            break
+        out.append(check_part(path, options, frames, should_stop))
+    return out
+
+
+def _plan(trace, options: FarmOptions):
+    from resweep.core.analysis.farm_plan import plan_ranges
+    return plan_ranges(trace.frame_count, trace.entity_count, trace.block_frames(), options.range_rows)
+
+
+def _check(trace, options: FarmOptions, frames, should_stop):
+    from resweep.core.check.rows import warm_up
+    from resweep.core.check.stream import check_trace
+    key = (options.settings.precision, str(trace.frame_dtype))
+    if key not in _warmed:
+        _warm(*key, warm_up)
+        _warmed.add(key)
+    return check_trace(trace, options.settings, limit=options.limit, should_stop=should_stop,
+                       frames=tuple(frames))
+
+
+def _warm(precision: str, frame_dtype: str, warm_up) -> None:
+    """Make this process's kernels ready, once.
+
+    The first worker to need a precision compiles (or loads) the kernels under the cache folder's
+    file lock and leaves a marker; later workers see the marker and let the kernels load on first
+    use without the lock (numba writes cache entries by atomic rename, so a complete entry is safe
+    to read). Holding the lock only to load would queue every worker of a cluster that shares one
+    cache folder behind each other's 1-2 s loads.
+    """
+    from resweep.core.jit.nb_jit import CACHE_DIR
+    marker = CACHE_DIR / f".ready-{precision}-{frame_dtype}"
+    if marker.exists():
+        return
+    warm_up(precision, frame_dtype)
+    try:
+        marker.touch()
+    except OSError:  # a read-only cache folder: every worker keeps taking the lock
+        pass

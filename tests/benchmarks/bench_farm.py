@@ -1,0 +1,170 @@
+"""Farms: many small traces on the local pool, and one big trace split across workers (on demand).
+
+    python tests/benchmarks/bench_farm.py [--small 1000] [--workers 2] [--repeat 3]
+
+1. ``--small`` traces of 1,000 entity-frames each (10 entities x 100 frames, cut from one yardstick
+   trace with our writer) checked as a folder on a local pool of ``--workers`` processes, against
+   the uncut trace checked by ``resweep check`` (target: the farm reaches >= 70% of its
+   entity-frames per second). Whole processes, wall clock, cluster start included; the farm's own
+   time (its JSON ``farm.seconds``, from the first task to the last result) is shown beside it.
+2. One yardstick trace of 200 entities x 30000 frames (6 M entity-frames) split into frame ranges
+   on 2 local workers (1 solver thread each) against 1 worker with 1 thread (target >= 1.6x); the
+   plain 2-thread ``resweep check`` is shown too, and the split counts are checked against it.
+"""
+from __future__ import annotations
+
+import json
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import statistics
+
+from _bench import Row, common_args, cpu_timed, make_trace, median_timed, print_table, rate, resweep_cmd
+
+
+def small_traces(args, whole: Path, count: int, frames: int = 100) -> Path:
+    """``count`` traces of ``frames`` frames each, cut from ``whole`` (same world), made once."""
+    folder = args.workdir / f"farm_small_{count}"
+    if len(list(folder.glob("*.h5"))) == count:
+        return folder
+    from resweep.core import open_trace, write_trace
+    from resweep.core.world.shapes import IMPLICIT_TYPES
+    folder.mkdir(parents=True, exist_ok=True)
+    with open_trace(whole) as tr:
+        for i in range(count):
+            b = tr.frames(i * frames, (i + 1) * frames)
+            write_trace(folder / f"run_{i:05d}.h5", chunk_size=tr.chunk_size, chunk_origin=tr.chunk_origin,
+                        chunk_blocks=tr.chunk_blocks,
+                        shapes=None if tr.type_count == IMPLICIT_TYPES else tr.shapes, edits=tr.edits, entity_ids=tr.ids,
+                        half_extents=tr.half_extents, time=tr.time[b.f0:b.f1], start=b.start, motion=b.motion,
+                        end=b.end, active=b.active, voxel_size=tr.voxel_size, up_axis=tr.up_axis,
+                        frame_dtype=tr.frame_dtype)
+    return folder
+
+
+def measure(cmd, repeat):
+    """Median wall and median CPU seconds (the process tree) of ``cmd`` over ``repeat`` runs."""
+    runs = [cpu_timed(cmd) for _ in range(repeat)]
+    return statistics.median(r[0] for r in runs), statistics.median(r[1] for r in runs)
+
+
+def farm_run(cmd, repeat):
+    """Median wall and CPU seconds of ``cmd`` (a farm writing JSON to a temp file), its farm section."""
+    with tempfile.TemporaryDirectory() as tmp:
+        out = Path(tmp) / "farm.json"
+        wall, cpu = measure(cmd + ["--json", str(out)], repeat)
+        return wall, cpu, json.loads(out.read_text())["farm"]
+
+
+def run_small(args) -> list[Row]:
+    n = args.small * 1000
+    whole = make_trace(args, f"farm_concat_10x{args.small * 100}.h5", entities=10, frames=args.small * 100)
+    folder = small_traces(args, whole, args.small)
+    one = resweep_cmd(whole, "--quiet")
+    many = resweep_cmd(folder, "--workers", args.workers, "--summary-only", "--quiet")
+    median_timed(one, 1)
+    t_one, c_one = measure(one, args.repeat)
+    t_many, c_many, farm = farm_run(many, args.repeat)
+    assert farm["checked"] == args.small and farm["entity_frames"] == n, farm
+    return [
+        Row("one trace, 1 M entity-frames", f"{t_one:.2f} s ({rate(n, t_one)}); CPU {c_one:.2f} s", "",
+            " ".join(map(str, one))),
+        Row(f"{args.small} traces of 1,000 on {args.workers} workers", f"{t_many:.2f} s ({rate(n, t_many)}); "
+            f"CPU {c_many:.2f} s; farm alone {farm['seconds']:.2f} s", "", " ".join(map(str, many))),
+        Row("farm rate / one-trace rate", f"wall {t_one / t_many:.2f}, CPU {c_one / c_many:.2f} "
+            f"(farm alone {t_one / farm['seconds']:.2f})", ">= 0.70"),
+    ]
+
+
+def run_split(args) -> list[Row]:
+    trace = make_trace(args, "resolve_200x30000.h5", entities=200, frames=30000)
+    n = 200 * 30000
+    two = resweep_cmd(trace, "--workers", 2, "--threads", 1, "--summary-only", "--quiet")
+    one = resweep_cmd(trace, "--workers", 1, "--threads", 1, "--summary-only", "--quiet")
+    plain = resweep_cmd(trace, "--quiet", "--json", "-", "--limit", "0")
+    median_timed(plain, 1)
+    t_plain, _, out = median_timed(plain, args.repeat)
+    t_one, c_one, farm1 = farm_run(one, args.repeat)
+    t_two, c_two, farm2 = farm_run(two, args.repeat)
+    counts = json.loads(out)["traces"][0]["counts"]
+    assert farm1["counts"] == farm2["counts"] == counts, (farm1["counts"], farm2["counts"], counts)
+    return [
+        Row("6 M split, 1 worker x 1 thread", f"{t_one:.2f} s ({rate(n, t_one)}); CPU {c_one:.2f} s; "
+            f"farm alone {farm1['seconds']:.2f} s", "", " ".join(map(str, one))),
+        Row("6 M split, 2 workers x 1 thread", f"{t_two:.2f} s ({rate(n, t_two)}); CPU {c_two:.2f} s; "
+            f"farm alone {farm2['seconds']:.2f} s", "", " ".join(map(str, two))),
+        Row("speed-up 2 workers / 1", f"{t_one / t_two:.2f}x (farm alone {farm1['seconds'] / farm2['seconds']:.2f}x)",
+            ">= 1.6x"),
+        Row("plain resweep check (2 threads, one process)", f"{t_plain:.2f} s ({rate(n, t_plain)})", "",
+            " ".join(map(str, plain))),
+        Row("counts: split == whole", "identical"),
+    ]
+
+
+def warm_farm(paths, workers: int, repeat: int):
+    """Median wall seconds of a farm over ``paths`` on an already started and warmed local cluster
+    of ``workers`` processes (1 solver thread each): the steady state of a long-lived cluster,
+    without process start-up and kernel loading."""
+    from resweep.core import SolverSettings
+    from resweep.core.analysis.farm_engines import DaskEngine
+    from resweep.core.analysis.farm_inputs import find_traces
+    from resweep.core.analysis.farm_run import run_farm
+    from resweep.core.analysis.farm_task import FarmOptions
+    traces, _ = find_traces([str(p) for p in paths])
+    opts = FarmOptions(SolverSettings(), limit=0, threads=1)
+    engine = DaskEngine(workers=workers)
+    try:
+        engine.client.run(_warm_worker)
+        times = []
+        for _ in range(repeat):
+            t0 = time.perf_counter()
+            res = run_farm(traces, opts, engine)
+            times.append(time.perf_counter() - t0)
+        return statistics.median(times), res
+    finally:
+        engine.close()
+
+
+def _warm_worker():
+    from resweep.core.check.rows import warm_up
+    warm_up("float64", "float32")
+    warm_up("float64", "float64")
+
+
+def run_warm(args) -> list[Row]:
+    big = make_trace(args, "resolve_200x30000.h5", entities=200, frames=30000)
+    small = args.workdir / f"farm_small_{args.small}"
+    t1, r1 = warm_farm([big], 1, args.repeat)
+    t2, r2 = warm_farm([big], 2, args.repeat)
+    assert r1.reports[str(big)].counts == r2.reports[str(big)].counts
+    s2, rs = warm_farm([small], 2, args.repeat)
+    w1, rw = warm_farm([args.workdir / f"farm_concat_10x{args.small * 100}.h5"], 2, args.repeat)
+    return [
+        Row("warm cluster: 6 M split, 1 worker / 2 workers", f"{t1:.2f} s / {t2:.2f} s = {t1 / t2:.2f}x", ">= 1.6x",
+            "bench_farm.py --only warm"),
+        Row(f"warm cluster, 2 workers: {args.small} small traces / one 1 M trace",
+            f"{s2:.2f} s / {w1:.2f} s: rate ratio {w1 / s2:.2f}", ">= 0.70", "bench_farm.py --only warm"),
+    ]
+
+
+def main(argv=None) -> int:
+    ap = common_args(__doc__.splitlines()[0])
+    ap.add_argument("--small", type=int, default=1000, help="small traces (1,000 entity-frames each)")
+    ap.add_argument("--workers", type=int, default=2)
+    ap.add_argument("--only", choices=("small", "split", "warm"), default=None)
+    args = ap.parse_args(argv)
+    rows = []
+    if args.only in (None, "small"):
+        rows += run_small(args)
+    if args.only in (None, "split"):
+        rows += run_split(args)
+    if args.only in (None, "warm"):
+        rows += run_warm(args)
+    print_table("farms", rows)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,107 @@
+"""Farms on a real dask.distributed LocalCluster (2 worker processes, started once for this module).
+
+Reference: each trace checked alone in this process by ``check_trace`` (the single-process check);
+the farm must reproduce its JSON exactly, whatever the workers and the finishing order.
+"""
+from __future__ import annotations
+
+import os
+import signal
+
+import pytest
+
+from farm_traces import broken_files, soak_run
+from resweep.core import SolverSettings, check_trace, open_trace
+from resweep.core.analysis.farm_engines import DaskEngine
+from resweep.core.analysis.farm_inputs import find_traces
+from resweep.core.analysis.farm_run import run_farm
+from resweep.core.analysis.farm_task import FarmOptions
+
+distributed = pytest.importorskip("distributed")  # a dependency; absent only in a broken install
+LIMIT = 40
+
+
+@pytest.fixture(scope="module")
+def cluster():
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                  dashboard_address=":0") as c:
+        yield c
+
+
+@pytest.fixture(scope="module")
+def soak(tmp_path_factory):
+    """A soak folder: 6 runs in two subfolders (one long enough to be split), 3 broken files."""
+    root = tmp_path_factory.mktemp("soak")
+    (root / "night" / "a").mkdir(parents=True)
+    (root / "night" / "b").mkdir()
+    for i in range(6):
+        soak_run(root / "night" / "ab"[i % 2] / f"bot_{i}.h5", seed=10 + i, frames=150 if i == 4 else 40)
+    bad = broken_files(root / "night" / "b")
+    return root / "night", bad
+
+
+def _alone(path, limit=LIMIT):
+    with open_trace(path) as tr:
+        return check_trace(tr, SolverSettings(), limit=limit).as_json()
+
+
+def _farm(cluster, folder, **kw):
+    traces, missing = find_traces([str(folder)])
+    engine = DaskEngine(address=cluster.scheduler_address)
+    try:
+        opts = FarmOptions(SolverSettings(), limit=LIMIT, range_rows=kw.pop("range_rows", 200), threads=1)
+        return run_farm(traces, opts, engine, missing=missing, **kw), traces
+    finally:
+        engine.close()
+
+
+def test_cluster_farm_matches_single_process_checks(cluster, soak):
+    folder, bad = soak
+    res, traces = _farm(cluster, folder)
+    good = [t.path for t in traces if os.path.basename(t.path).startswith("bot_")]
+    assert len(good) == 6 and [t.path for t in traces] == sorted(t.path for t in traces)
+    assert sorted(res.reports) == sorted(good)
+    for p in good:
+        assert res.reports[p].as_json() == _alone(p)
+    assert {os.path.basename(p) for p in res.unreadable} == set(bad)
+    for p, why in res.unreadable.items():
+        assert why.startswith(p) and bad[os.path.basename(p)] in why and "\n" not in why
+    assert not res.interrupted and res.not_checked() == []
+
+
+def test_the_long_trace_was_split_and_still_matches(cluster, soak):
+    folder, _ = soak
+    long = str(folder / "a" / "bot_4.h5")
+    seen = []
+    res, _ = _farm(cluster, folder, range_rows=100, progress=lambda d, t, rows: seen.append((d, t, rows)))
+    assert res.reports[long].as_json() == _alone(long)
+    assert seen[-1][0] == 9 and seen[-1][1] == 9
+    assert seen[-1][2] == sum(r.entity_frames for r in res.reports.values())
+    # 9 traces go out in 5 batches (at most 9 / (4 x 2 workers) -> 2 per batch); 150 frames x 7
+    # entities in ranges of ~100 entity-frames add 10 or more range tasks
+    assert len(seen) >= 5 + 10
+
+
+def test_a_killed_worker_loses_no_trace(cluster, soak):
+    folder, _ = soak
+    client = distributed.Client(cluster.scheduler_address)
+    killed = []
+
+    def kill_one(done, total, rows):
+        if killed:
+            return
+        busy = [w for w, tasks in client.processing().items() if tasks]
+        if busy:
+            pid = client.run(os.getpid, workers=[busy[0]])[busy[0]]
+            os.kill(pid, signal.SIGKILL)
+            killed.append(pid)
+
+    try:
+        res, traces = _farm(cluster, folder, range_rows=60, progress=kill_one)
+    finally:
+        client.close()
+    assert killed, "a worker was busy when the first task finished"
+    good = [t.path for t in traces if os.path.basename(t.path).startswith("bot_")]
+    assert sorted(res.reports) == sorted(good) and len(res.unreadable) == 3
+    for p in good:
+        assert res.reports[p].as_json() == _alone(p)
