@@ -1,7 +1,7 @@
 """The caption of a picture: what is shown (text lines) and the band they are drawn in (Pillow).
 
 Band layout, for a picture ``height`` pixels tall (band included): font size
-``fs = clip(round(0.03 * height), 10, 30)`` pixels (Pillow's default font), margin
+``fs = clip(round(min(0.03 * height, 0.018 * width)), 10, 30)`` pixels (Pillow's default font), margin
 ``pad = max(3, fs // 2)``, line pitch ``line_h = round(1.3 * fs)``; text line i is drawn in
 TEXT_RGB on BAND_RGB with its top-left at (pad, pad + i * line_h). The legend (colour swatch +
 label per entry) flows in rows to the right of the widest text line, at least 3 * fs beyond it,

@@ -207,18 +207,24 @@ def test_viewport_picture_changes_between_frames_without_rebuilding_voxels(qtbot
 
 def expected_caption(frame: int, eid: int) -> list[str]:
     """The caption of the dasher's picture written out from the core's check (not from caption.py):
-    file and frame, entity id and name, kinds with errors and the first reference hit, settings."""
+    file and frame; entity, name and the first reference hit; the kind in words (label and meaning
+    from the kinds table, its one definition) with its error and axis; the settings."""
+    import textwrap
+    from resweep.core.check.kinds import BY_NAME
     with open_trace(DEMO) as tr:
         rep = check_trace(tr, SolverSettings(), limit=10 ** 6)
         name, last, t = tr.names[tr.entity_index(eid)], tr.frame_count - 1, float(tr.time[frame])
-    ds = [d for d in rep.divergences if d.frame == frame and d.entity == eid]
-    kinds = ", ".join(f"{d.kind} [{d.severity}]" + ("" if d.error is None else f" {d.error:.4f}") for d in ds)
-    hits = [p["voxel"] for p in ds[0].passes if p["voxel"] is not None]
+    d = [d for d in rep.divergences if d.frame == frame and d.entity == eid][0]
+    who = f"entity {eid} {name}"
+    hits = [p["voxel"] for p in d.passes if p["voxel"] is not None]
     if hits:  # the dasher's dash stops at the demo's plank wall (core/demo/quarry.py)
-        v = hits[0]
-        kinds += f"; reference stops at plank wall ({v[0]}, {v[1]}, {v[2]})"
+        who += f"   reference stops at plank wall ({hits[0][0]}, {hits[0][1]}, {hits[0][2]})"
+    axis = "xyz"[int(np.argmax(np.abs(np.subtract(d.recorded_end, d.reference_end))))]
+    k = BY_NAME[d.kind]
+    kind = f"{k.label.upper()} ({d.kind}, {d.severity}): {d.error:.4g} world units = {d.error:.4g} voxels along {axis}"
     settings = "reference: sweep and slide, 3 passes, skin 0.001, tolerance 0.01 voxels, float64"  # the defaults
-    return [f"quarry.h5   frame {frame} of 0..{last}   t = {t:.3f} s", f"entity {eid} {name}", kinds, settings]
+    return ([f"quarry.h5   frame {frame} of 0..{last}   t = {t:.3f} s", who, kind]
+            + textwrap.wrap("what it means: " + k.meaning, 96) + [settings])
 
 
 def test_saved_picture_has_the_caption_band_that_says_what_is_shown(qtbot, window, tmp_path):
@@ -236,7 +242,7 @@ def test_saved_picture_has_the_caption_band_that_says_what_is_shown(qtbot, windo
     # The text drawn here from the layout documented in app/scene/caption.py (not its code), for a
     # picture a third taller than the view (picture.compose), with the core's text.
     lines = expected_caption(40, 102)
-    fs = int(np.clip(round(0.03 * (H + H // 3)), 10, 30))
+    fs = int(np.clip(round(min(0.03 * (H + H // 3), 0.018 * W)), 10, 30))
     pad, line_h = max(3, fs // 2), int(round(1.3 * fs))
     font = ImageFont.load_default(size=fs)
     want = Image.new("RGB", (W, band.shape[0]), BAND_RGB)
