@@ -14,8 +14,8 @@ Method (published, common practice in games):
 Documented tie rules (the semantics tests state independently):
 - touching is not contact: a box is a contact only when the moving box, shrunk by the touch
   margin delta on every side, overlaps its open interior at some time in [0, 1) (:func:`narrow`).
-  delta = ``TOUCH_ULPS`` (8) machine epsilons of the sweep's largest coordinate magnitude, max
-  over axes of |p| + |r| + h (:func:`touch_margin`): ~1e-15 relative in float64, ~1e-6 in float32.
+  delta, per axis, = ``TOUCH_ULPS`` (4) machine epsilons of |p| + |r| + h on that axis
+  (:func:`touch_margin`): ~1e-15 relative in float64, ~5e-7 in float32.
   So exact touches, grazes (entry exactly at the exit time), boxes exactly as wide as a gap and
   motions exactly along a face are never contacts, whatever the rounding; overlaps thinner than
   delta count as touches. The contact time is the unshrunk entry time; the box's entry axes are
@@ -66,9 +66,9 @@ class Search(NamedTuple):
     cand: np.int64
 
 
-#: Touch margin in machine epsilons of the sweep's largest coordinate (see touch_margin): float
-#: rounding of p + r t and of a slab time stays within a few ulps, this leaves a factor ~2 over it.
-TOUCH_ULPS = 8.0
+#: Touch margin in machine epsilons of each axis's coordinate magnitude (see touch_margin): 2 to 4
+#: ulps; float rounding of p + r t and of a slab time stays within about 2.
+TOUCH_ULPS = 4.0
 
 #: Search modes: the earliest hit of a pass, or only whether the path enters any box at t in [0, 1).
 FIRST_HIT, ENTERS = 0, 1
@@ -170,7 +170,7 @@ def blocked_axes(packed):
 @kernel(inline="always")
 def entry_axes(p, r, h, v, bb, vs, te, d):
     """Bitmask of the axes whose slab the box enters within the touch margin ``d`` of the entry
-    time ``te`` (in distance along the axis: (te - t_a) |r_a| <= d), with the slab times computed
+    time ``te`` (in distance along the axis: (te - t_a) |r_a| <= d_a), with the slab times computed
     by the same operations as :func:`box_interval`. A box reaching an edge or corner is then an
     edge or corner entry even when rounding puts one face's entry an ulp earlier."""
     axes = 0
@@ -179,31 +179,31 @@ def entry_axes(p, r, h, v, bb, vs, te, d):
             continue
         near = (v[a] + bb[a]) * vs - h[a] if r[a] > 0 else (v[a] + bb[a + 3]) * vs + h[a]
         t1 = (near - p[a]) / r[a]
-        if (te - t1) * abs(r[a]) <= d:
+        if (te - t1) * abs(r[a]) <= d[a]:
             axes |= 1 << a
     return axes
 
 
 @kernel(inline="always")
 def touch_margin(p, r, h, vs):
-    """The touch margin delta of one sweep (world units): ``TOUCH_ULPS`` machine epsilons of the
-    largest coordinate magnitude the sweep involves, max over axes of |p| + |r| + h.
+    """The touch margins delta of one sweep, per axis (float 3-tuple, world units):
+    ``TOUCH_ULPS`` machine epsilons of that axis's coordinate magnitude |p| + |r| + h.
 
-    Float rounding of a slab time is a few ulps of these coordinates, so interiors that overlap
-    by no more than delta are treated as touching (see :func:`narrow`)."""
-    big = fl(vs, 0)
-    for a in range(3):
-        big = max(big, abs(p[a]) + abs(r[a]) + h[a])
-    return big * (fl(vs, TOUCH_ULPS) * eps_of(vs))
+    Float rounding of a position and of a slab time is a few ulps of these coordinates, so
+    interiors that overlap by no more than delta on an axis are treated as touching (see
+    :func:`narrow`)."""
+    e = fl(vs, TOUCH_ULPS) * eps_of(vs)
+    return ((abs(p[0]) + abs(r[0]) + h[0]) * e, (abs(p[1]) + abs(r[1]) + h[1]) * e,
+            (abs(p[2]) + abs(r[2]) + h[2]) * e)
 
 
 @kernel(inline="always")
 def narrow(p, r, h, d, v, bb, x, y, z, t, b, vs, best, mode):
     """Test block box ``b`` (type ``t``, corners ``bb``) of voxel (x, y, z) (``v`` its float
-    corner) and fold the result into the :class:`Search` ``best``. ``d`` is the touch margin
-    (:func:`touch_margin`). In ``ENTERS`` mode ``axes`` becomes 1 once the path enters a box.
+    corner) and fold the result into the :class:`Search` ``best``. ``d`` are the touch margins
+    per axis (:func:`touch_margin`). In ``ENTERS`` mode ``axes`` becomes 1 once the path enters a box.
 
-    A box is a contact only when the moving box shrunk by ``d`` on every side still overlaps its
+    A box is a contact only when the moving box shrunk by ``d`` on each axis still overlaps its
     interior at some time in [0, 1): a graze or a touch that float rounding turns into an overlap
     of a few ulps is no contact. The contact time itself is the unshrunk entry time.
     """
@@ -214,7 +214,7 @@ def narrow(p, r, h, d, v, bb, x, y, z, t, b, vs, best, mode):
         return Search(tmin, axes, hx, hy, hz, hb, htype, cand)
     # The shrunk box's interval lies inside the unshrunk one (monotone rounding), so the cheap
     # unshrunk rejection above never drops a box the shrunk test would keep.
-    ts, txs, _ = box_interval(p, r, (h[0] - d, h[1] - d, h[2] - d), v, v, bb, vs)
+    ts, txs, _ = box_interval(p, r, (h[0] - d[0], h[1] - d[1], h[2] - d[2]), v, v, bb, vs)
     if not (ts < txs) or txs <= 0 or ts >= 1:
         return Search(tmin, axes, hx, hy, hz, hb, htype, cand)
     if mode == ENTERS:
@@ -262,7 +262,7 @@ def scan_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode):
 
     Args:
         p, r, h: float 3-tuples: centre, motion, half extents (world units).
-        d: touch margin of the sweep (:func:`touch_margin`), world units.
+        d: touch margins of the sweep per axis (:func:`touch_margin`), world units.
         best: search state to continue from; mode: FIRST_HIT or ENTERS (stops at the first entry).
     Returns:
         the updated search state.

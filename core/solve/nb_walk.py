@@ -94,7 +94,7 @@ def walk_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode, stack):
 
     Args:
         p, r, h: float 3-tuples (centre, motion, half extents; world units); r not all zero.
-        d: touch margin (nb_narrow.touch_margin); regions are tested without it (a superset).
+        d: touch margins (nb_narrow.touch_margin); regions are tested without them (a superset).
         best: search state (see nb_sweep); mode: FIRST_HIT or ENTERS.
         stack: int64 (STACK_ROWS, 6) scratch, one per thread.
     Returns:
