@@ -19,6 +19,12 @@ class Kind:
         label: a few words for panels, legends and captions.
         meaning: one sentence for help texts and reports.
         short: column heading of at most four letters.
+        test: the precise geometric test, as the row kernel (``check.nb_rows``) applies it. Terms:
+            s, m, e, h: recorded start, wanted motion, recorded end, half extents; r: reference
+            end; tol: the tolerance (world units); depth(c): deepest interior overlap of the box
+            at c with solid (max over solid boxes of the least per-axis overlap); "differs":
+            |e - r| > tol. Penetration, tunneling, snag and mismatch exclude each other and are
+            tried in that order (penetration of the end first, then tunneling, then a dip).
     """
 
     name: str
@@ -27,26 +33,45 @@ class Kind:
     label: str
     meaning: str
     short: str
+    test: str
 
 
 TABLE: tuple[Kind, ...] = (
     Kind("invalid", "error", 0, "invalid row",
-         "non-finite start, motion or end, or non-positive half extents; the rest is still checked", "inv"),
+         "non-finite start, motion or end, or non-positive half extents; the rest is still checked", "inv",
+         "some component of s, m, e or h is not finite, or some h <= 0 (the row is not solved)"),
     Kind("start_overlap", "warning", 1, "starts inside solid",
-         "the box at frame start overlaps solid deeper than the tolerance (error = depth)", "ovl"),
+         "the box at frame start overlaps solid deeper than the tolerance (error = depth)", "ovl",
+         "depth(s) > tol (error = depth(s))"),
     Kind("penetration", "error", 2, "ends inside solid",
-         "the recorded end overlaps solid deeper than the tolerance (error = depth)", "pen"),
+         "the recorded end overlaps solid deeper than the tolerance, or the recorded path sinks into a "
+         "surface the reference stopped at and ends free (error = depth)", "pen",
+         "depth(e) > tol (error = depth(e)); or the row differs, the reference hit something, the box "
+         "shrunk by tol on the straight path s -> e enters solid, e is not wholly past a hit face (see "
+         "tunneling) and the recorded box's leading face went more than tol past some hit face: "
+         "n . (c - e) > tol for a hit normal n of some pass, c the exact contact centre (error = the "
+         "largest n . (c - e))"),
     Kind("tunneling", "error", 3, "went through solid",
          "the recorded straight path goes through solid the reference stopped at, and the recorded end "
-         "lies beyond it", "tun"),
+         "lies wholly beyond it", "tun",
+         "depth(e) <= tol, the row differs, the reference hit something, the box shrunk by tol on the "
+         "straight path s -> e enters solid, and the recorded box lies wholly past some hit face: "
+         "n_a (c_a - e_a) >= 2 h_a for a hit normal n of some pass on axis a (error = |e - r|)"),
     Kind("snag", "warning", 4, "stopped short",
-         "the recorded end falls short of the reference along its direction of travel (lost slide, caught "
-         "on a seam or edge; error = shortfall)", "snag"),
+         "the recorded end falls short of the reference along its direction of travel, with no "
+         "penetration and no motion against it (lost slide, caught on a seam or edge; error = "
+         "shortfall)", "snag",
+         "not penetration or tunneling; the row differs; shortfall (r - e) . (r - s) / |r - s| > tol "
+         "(0 when r = s); and on no axis does e - s go against r - s or against m by more than tol "
+         "(error = shortfall)"),
     Kind("mismatch", "warning", 5, "ends elsewhere",
-         "recorded and reference ends differ by more than the tolerance in any other way", "mis"),
+         "recorded and reference ends differ by more than the tolerance in any other way", "mis",
+         "the row differs and is none of penetration, tunneling and snag (error = |e - r|)"),
     Kind("discontinuity", "info", 6, "jumped between frames",
          "the start of frame f+1 differs from the recorded end of frame f (teleport, correction between "
-         "frames)", "gap"),
+         "frames)", "gap",
+         "the entity is active on frames f and f+1 and |start(f+1) - end(f)| > tol (NaN never counts; "
+         "error = that distance)"),
 )
 
 #: Kind names in bit order.

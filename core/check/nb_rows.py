@@ -52,6 +52,117 @@ def clear_passes(i, k0, t_out, n_out, v_out, type_out, cand_out, vs):
 
 
 @kernel(inline="always")
+def invalid_row(i, ref_end, npass, state, pts, flags, vs):
+    """Row ``i`` is invalid (see kinds ``invalid``): no solve; NaN reference end and path."""
+    flags[i] = 1 << INVALID
+    npass[i] = 0
+    state[i] = CLEAR
+    for a in range(3):
+        ref_end[i, a] = fl(vs, np.nan)
+        for k in range(pts.shape[1]):
+            pts[i, k, a] = fl(vs, np.nan)
+
+
+@kernel(inline="always")
+def start_flags(i, d0, hit, tol, state, err):
+    """Row state from the start's overlap depth ``d0``, and the ``start_overlap`` bit."""
+    if d0 > 0:
+        state[i] = STARTED_INSIDE
+    elif hit:
+        state[i] = HIT
+    else:
+        state[i] = CLEAR
+    if d0 > tol:
+        err[i, START_OVERLAP] = d0
+        return 1 << START_OVERLAP
+    return 0
+
+
+@kernel(inline="always")
+def past_hit_faces(i, run, n_out, contact, e, h):
+    """How far the recorded end ``e`` went past the reference's hit faces (kinds ``tunneling`` and
+    ``penetration``): (sink, beyond). For each pass and axis with hit normal n = +-1, the recorded
+    box's leading face lies ``n * (contact - e)`` past that face's plane (``contact``: the exact
+    contact centre on that axis); ``sink`` is the largest such distance, ``beyond`` whether the
+    whole box (2 h along the axis) passed some hit face's plane."""
+    sink = contact[0] - contact[0]  # zero in the float type
+    beyond = False
+    for k in range(run):
+        for a in range(3):
+            n = n_out[i, k, a]
+            if n != 0:
+                past = (contact[a] - e[a]) if n > 0 else (e[a] - contact[a])
+                sink = max(sink, past)
+                if past >= h[a] + h[a]:
+                    beyond = True
+    return sink, beyond
+
+
+@kernel(inline="always")
+def shortfall(s, m, e, r, tol):
+    """(short, against): how far the recorded end ``e`` falls short of the reference end ``r``
+    along the reference's direction of travel r - s (0 when the reference did not move), and
+    whether the recorded displacement e - s goes against the reference displacement or the wanted
+    motion ``m`` by more than ``tol`` on some axis (kind ``snag``)."""
+    short = tol - tol
+    travel2 = tol - tol
+    against = False
+    for a in range(3):
+        travel2 += (r[a] - s[a]) * (r[a] - s[a])
+        de = e[a] - s[a]
+        dr = r[a] - s[a]
+        if (dr > 0 and de < -tol) or (dr < 0 and de > tol) or (m[a] > 0 and de < -tol) or (m[a] < 0 and de > tol):
+            against = True
+    if travel2 > 0:
+        travel = np.sqrt(travel2)
+        for a in range(3):
+            short += (r[a] - e[a]) * (r[a] - s[a])
+        short = short / travel
+    return short, against
+
+
+@kernel(inline="always")
+def classify_end(i, s, m, e, h, hit, run, contact, d0, world, tol, broad, stack, ref_end, n_out, err):
+    """Flag bits of penetration, tunneling, snag and mismatch for a solved row (the tests are the
+    ``test`` texts of kinds.TABLE); writes their error values."""
+    vs = world.voxel_size
+    r = row3(ref_end, i)
+    dist2 = fl(vs, 0)
+    for a in range(3):
+        dist2 += (e[a] - r[a]) * (e[a] - r[a])
+    dist = np.sqrt(dist2)
+    # A recorded end within tolerance of an overlap-free reference cannot overlap deeper than
+    # the tolerance, so the costlier queries run only for rows that differ.
+    if dist > tol or d0 > 0:
+        d1 = overlap_depth(e, h, world)
+        if d1 > tol:
+            err[i, PENETRATION] = d1
+            return 1 << PENETRATION
+    if not (dist > tol):
+        return 0
+    if hit:
+        # The straight recorded path, with the box shrunk by the tolerance, entering solid while
+        # the end is free: through the reference's hit face and out (tunneling), or a dip into it.
+        dpath = (e[0] - s[0], e[1] - s[1], e[2] - s[2])
+        hs = (max(h[0] - tol, h[0] * fl(vs, 0.5)), max(h[1] - tol, h[1] * fl(vs, 0.5)),
+              max(h[2] - tol, h[2] * fl(vs, 0.5)))
+        if path_enters_solid(s, dpath, hs, world, broad, stack):
+            sink, beyond = past_hit_faces(i, run, n_out, contact, e, h)
+            if beyond:
+                err[i, TUNNELING] = dist
+                return 1 << TUNNELING
+            if sink > tol:
+                err[i, PENETRATION] = sink
+                return 1 << PENETRATION
+    short, against = shortfall(s, m, e, r, tol)
+    if short > tol and not against:
+        err[i, SNAG] = short
+        return 1 << SNAG
+    err[i, MISMATCH] = dist
+    return 1 << MISMATCH
+
+
+@kernel(inline="always")
 def check_row(i, start, motion, rec_end, half, world, skin, passes, tol, broad, stack,
               ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, flags, err):
     """Solve and classify row ``i`` (arguments as :func:`check_rows`). Inlined into the row loop:
@@ -64,70 +175,17 @@ def check_row(i, start, motion, rec_end, half, world, skin, passes, tol, broad, 
     for k in range(KIND_COUNT):
         err[i, k] = fl(vs, np.nan)
     if not row_valid(s, m, e, h):
-        flags[i] = 1 << INVALID
-        npass[i] = 0
-        state[i] = CLEAR
-        for a in range(3):
-            ref_end[i, a] = fl(vs, np.nan)
-            for k in range(pts.shape[1]):
-                pts[i, k, a] = fl(vs, np.nan)
+        invalid_row(i, ref_end, npass, state, pts, flags, vs)
         clear_passes(i, 0, t_out, n_out, v_out, type_out, cand_out, vs)
         return
-    run, hit = solve_row(s, m, h, world, skin, passes, broad, stack, i, ref_end, t_out, n_out, v_out,
-                         type_out, cand_out, pts)
+    run, hit, contact = solve_row(s, m, h, world, skin, passes, broad, stack, i, ref_end, t_out, n_out, v_out,
+                                  type_out, cand_out, pts)
     clear_passes(i, run, t_out, n_out, v_out, type_out, cand_out, vs)
     npass[i] = run
-    f = 0
     d0 = overlap_depth(s, h, world)
-    if d0 > 0:
-        state[i] = STARTED_INSIDE
-    elif hit:
-        state[i] = HIT
-    else:
-        state[i] = CLEAR
-    if d0 > tol:
-        f |= 1 << START_OVERLAP
-        err[i, START_OVERLAP] = d0
-    r = row3(ref_end, i)
-    dist2 = fl(vs, 0)
-    for a in range(3):
-        dist2 += (e[a] - r[a]) * (e[a] - r[a])
-    dist = np.sqrt(dist2)
-    # A recorded end within tolerance of an overlap-free reference cannot overlap deeper than
-    # the tolerance, so the costlier queries run only for rows that differ.
-    if dist > tol or d0 > 0:
-        d1 = overlap_depth(e, h, world)
-        if d1 > tol:
-            f |= 1 << PENETRATION
-            err[i, PENETRATION] = d1
-    if dist > tol:
-        tunnel = False
-        if hit and not (f & (1 << PENETRATION)):
-            # The straight recorded path, with the box shrunk by the tolerance, entering solid
-            # while the end is free means the recorded motion went through something.
-            dpath = (e[0] - s[0], e[1] - s[1], e[2] - s[2])
-            hs = (max(h[0] - tol, h[0] * fl(vs, 0.5)), max(h[1] - tol, h[1] * fl(vs, 0.5)),
-                  max(h[2] - tol, h[2] * fl(vs, 0.5)))
-            tunnel = path_enters_solid(s, dpath, hs, world, broad, stack)
-        if tunnel:
-            f |= 1 << TUNNELING
-            err[i, TUNNELING] = dist
-        short = fl(vs, 0)
-        travel2 = fl(vs, 0)
-        for a in range(3):
-            travel2 += (r[a] - s[a]) * (r[a] - s[a])
-        if travel2 > 0:
-            travel = np.sqrt(travel2)
-            for a in range(3):
-                short += (r[a] - e[a]) * (r[a] - s[a])
-            short = short / travel
-        if not (f & (1 << PENETRATION)) and not tunnel and short > tol:
-            f |= 1 << SNAG
-            err[i, SNAG] = short
-        if not (f & ((1 << PENETRATION) | (1 << TUNNELING) | (1 << SNAG))):
-            f |= 1 << MISMATCH
-            err[i, MISMATCH] = dist
-    flags[i] = f
+    f = start_flags(i, d0, hit, tol, state, err)
+    flags[i] = f | classify_end(i, s, m, e, h, hit, run, contact, d0, world, tol, broad, stack, ref_end,
+                                n_out, err)
 
 
 @kernel(parallel=True, nogil=True)

@@ -32,7 +32,9 @@ class RowResults:
             (a subset; it depends on the geometry and the world's extent, not on chunk order or
             size); every other field is identical for all broad phases.
         points: float (M, P+1, 3) centre at the start of each pass, then the end (the slide path;
-            entries after the last pass run repeat the end).
+            entries after the last pass run repeat the end). Axes blocked in an earlier pass are
+            shown at their backed-off place; the pass itself starts from the exact contact (the skin
+            is applied once, at the end: see solve.nb_slide).
         flags: int32 (M,) bit k set when divergence kind k applies (see kinds.KINDS).
         error: float (M, KIND_COUNT) error value per kind, world units, NaN where it does not apply.
     """

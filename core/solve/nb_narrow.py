@@ -4,18 +4,31 @@ Method (published, common practice in games):
 - broad phase: every solid block box whose voxel lies in the swept bounding box of the pass
   (box at pass start union box at pass end), widened by a voxel when shapes reach past their cell
   (:func:`scan_cells` over :func:`nb_world.sweep_range`). Long motions instead walk only the cells
-  the moving box can reach (``nb_traverse``); both give the same result;
+  the moving box can reach (``nb_walk``); both give the same result;
 - narrow phase: the moving box against each static box as a ray from the box centre against the
   static box expanded by the half extents (Minkowski sum), intersected slab by slab: the
   moving-AABB interval test of Ericson, *Real-Time Collision Detection* (2005), sec. 5.5;
-- the minimum entry time over all candidates (``nb_solve`` then moves there, stops ``skin`` short
-  of the hit face, removes the motion along the hit normal and repeats: slide).
+- the minimum entry time over all candidates (``nb_slide`` then moves there, removes the motion
+  along the hit normal and repeats: slide; the skin is applied once at the end, see nb_slide).
 
-Contact needs overlap of open interiors, so boxes that only touch never collide: a box sliding
-on a floor of many blocks never catches on the seams. Faces entered at exactly the same time all
-block their axes (an edge entry only when no face entry at that instant covers one of its axes, see
-``blocked_axes``) and the reported hit voxel is the lexicographically smallest among them, so the
-result never depends on the order candidates are visited in.
+Documented tie rules (the semantics tests state independently):
+- touching is not contact: a box is a contact only when the moving box, shrunk by the touch
+  margin delta on every side, overlaps its open interior at some time in [0, 1) (:func:`narrow`).
+  delta, per axis, = ``TOUCH_ULPS`` (4) machine epsilons of |p| + |r| + h on that axis
+  (:func:`touch_margin`): ~1e-15 relative in float64, ~5e-7 in float32.
+  So exact touches, grazes (entry exactly at the exit time), boxes exactly as wide as a gap and
+  motions exactly along a face are never contacts, whatever the rounding; overlaps thinner than
+  delta count as touches. The contact time is the unshrunk entry time; the box's entry axes are
+  the axes whose slab it enters within delta (in distance) of that time (:func:`entry_axes`), so
+  an edge or corner reached exactly is an edge or corner entry whatever the rounding;
+- a box the sweep starts inside (entry time < 0) blocks its least-penetration axis at t = 0 when
+  the motion digs deeper along it, else it is ignored (:func:`inside_axis`). Depth ties between
+  axes go to the lowest axis (x, then y, then z); a box centred on an axis counts the lower face
+  of that axis as the nearer one (outward normal -1);
+- faces entered at exactly the same time all block their axes (an edge entry only when no face
+  entry at that instant covers one of its axes, see ``blocked_axes``) and the reported hit voxel is
+  the lexicographically smallest (x, y, z, box index) among them, so the result never depends on
+  the order candidates are visited in.
 
 The search state travels as the named tuple :class:`Search` (see its fields).
 """
@@ -25,7 +38,7 @@ from typing import NamedTuple
 
 import numpy as np
 
-from resweep.core.jit.nb_float import fl
+from resweep.core.jit.nb_float import eps_of, fl
 from resweep.core.jit.nb_jit import hot, kernel
 from resweep.core.solve.settings import CLEAR, HIT, STARTED_INSIDE  # noqa: F401  (row states, re-exported)
 from resweep.core.world.nb_world import box_corners, chunk_lookup
@@ -52,6 +65,10 @@ class Search(NamedTuple):
     htype: np.int64
     cand: np.int64
 
+
+#: Touch margin in machine epsilons of each axis's coordinate magnitude (see touch_margin): 2 to 4
+#: ulps; float rounding of p + r t and of a slab time stays within about 2.
+TOUCH_ULPS = 4.0
 
 #: Search modes: the earliest hit of a pass, or only whether the path enters any box at t in [0, 1).
 FIRST_HIT, ENTERS = 0, 1
@@ -151,24 +168,66 @@ def blocked_axes(packed):
 
 
 @kernel(inline="always")
-def narrow(p, r, h, v, bb, x, y, z, t, b, vs, best, mode):
+def entry_axes(p, r, h, v, bb, vs, te, d):
+    """Bitmask of the axes whose slab the box enters within the touch margin ``d`` of the entry
+    time ``te`` (in distance along the axis: (te - t_a) |r_a| <= d_a), with the slab times computed
+    by the same operations as :func:`box_interval`. A box reaching an edge or corner is then an
+    edge or corner entry even when rounding puts one face's entry an ulp earlier."""
+    axes = 0
+    for a in range(3):
+        if r[a] == 0:
+            continue
+        near = (v[a] + bb[a]) * vs - h[a] if r[a] > 0 else (v[a] + bb[a + 3]) * vs + h[a]
+        t1 = (near - p[a]) / r[a]
+        if (te - t1) * abs(r[a]) <= d[a]:
+            axes |= 1 << a
+    return axes
+
+
+@kernel(inline="always")
+def touch_margin(p, r, h, vs):
+    """The touch margins delta of one sweep, per axis (float 3-tuple, world units):
+    ``TOUCH_ULPS`` machine epsilons of that axis's coordinate magnitude |p| + |r| + h.
+
+    Float rounding of a position and of a slab time is a few ulps of these coordinates, so
+    interiors that overlap by no more than delta on an axis are treated as touching (see
+    :func:`narrow`)."""
+    e = fl(vs, TOUCH_ULPS) * eps_of(vs)
+    return ((abs(p[0]) + abs(r[0]) + h[0]) * e, (abs(p[1]) + abs(r[1]) + h[1]) * e,
+            (abs(p[2]) + abs(r[2]) + h[2]) * e)
+
+
+@kernel(inline="always")
+def narrow(p, r, h, d, v, bb, x, y, z, t, b, vs, best, mode):
     """Test block box ``b`` (type ``t``, corners ``bb``) of voxel (x, y, z) (``v`` its float
-    corner) and fold the result into the :class:`Search` ``best``. In ``ENTERS`` mode ``axes`` becomes 1 once the path
-    enters a box."""
+    corner) and fold the result into the :class:`Search` ``best``. ``d`` are the touch margins
+    per axis (:func:`touch_margin`). In ``ENTERS`` mode ``axes`` becomes 1 once the path enters a box.
+
+    A box is a contact only when the moving box shrunk by ``d`` on each axis still overlaps its
+    interior at some time in [0, 1): a graze or a touch that float rounding turns into an overlap
+    of a few ulps is no contact. The contact time itself is the unshrunk entry time.
+    """
     tmin, axes, hx, hy, hz, hb, htype, cand = best
     cand += 1
     te, tx, eax = box_interval(p, r, h, v, v, bb, vs)
-    if mode == ENTERS:
-        if te < tx and te >= 0 and te < 1:
-            axes = 1
-        return Search(tmin, axes, hx, hy, hz, hb, htype, cand)
     if not (te < tx) or tx <= 0 or te >= 1:
+        return Search(tmin, axes, hx, hy, hz, hb, htype, cand)
+    # The shrunk box's interval lies inside the unshrunk one (monotone rounding), so the cheap
+    # unshrunk rejection above never drops a box the shrunk test would keep.
+    ts, txs, _ = box_interval(p, r, (h[0] - d[0], h[1] - d[1], h[2] - d[2]), v, v, bb, vs)
+    if not (ts < txs) or txs <= 0 or ts >= 1:
+        return Search(tmin, axes, hx, hy, hz, hb, htype, cand)
+    if mode == ENTERS:
+        if ts >= 0:
+            axes = 1
         return Search(tmin, axes, hx, hy, hz, hb, htype, cand)
     if te < 0:
         eax = inside_axis(p, r, h, v, bb, vs)
         if eax == 0:
             return Search(tmin, axes, hx, hy, hz, hb, htype, cand)
         te = fl(vs, 0)
+    else:
+        eax = entry_axes(p, r, h, v, bb, vs, te, d)
     if axes == 0 or te < tmin:
         return Search(te, pack_entry(eax), np.int64(x), np.int64(y), np.int64(z), np.int64(b), np.int64(t), cand)
     if te == tmin:
@@ -179,7 +238,7 @@ def narrow(p, r, h, v, bb, x, y, z, t, b, vs, best, mode):
 
 
 @kernel(inline="always")
-def scan_chunk(p, r, h, world, ci, bx, by, bz, x0, x1, y0, y1, z0, z1, best, mode):
+def scan_chunk(p, r, h, d, world, ci, bx, by, bz, x0, x1, y0, y1, z0, z1, best, mode):
     """Narrow phase against the solid boxes of the voxels [x0, x1] x [y0, y1] x [z0, z1], all in
     chunk ``ci`` whose first voxel is (bx, by, bz). Arguments and result as :func:`scan_cells`."""
     blocks, bstart, bboxes, vs = world.blocks, world.box_start, world.boxes, world.voxel_size
@@ -191,18 +250,19 @@ def scan_chunk(p, r, h, world, ci, bx, by, bz, x0, x1, y0, y1, z0, z1, best, mod
                     continue
                 v = (fl(vs, x), fl(vs, y), fl(vs, z))
                 for b in range(bstart[t], bstart[t + 1]):
-                    best = narrow(p, r, h, v, box_corners(bboxes, b), x, y, z, t, b, vs, best, mode)
+                    best = narrow(p, r, h, d, v, box_corners(bboxes, b), x, y, z, t, b, vs, best, mode)
                 if mode == ENTERS and best.axes != 0:
                     return best
     return best
 
 
 @hot
-def scan_cells(p, r, h, world, i0, i1, j0, j1, k0, k1, best, mode):
+def scan_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode):
     """Narrow phase against every solid box of the voxels [i0, i1] x [j0, j1] x [k0, k1].
 
     Args:
         p, r, h: float 3-tuples: centre, motion, half extents (world units).
+        d: touch margins of the sweep per axis (:func:`touch_margin`), world units.
         best: search state to continue from; mode: FIRST_HIT or ENTERS (stops at the first entry).
     Returns:
         the updated search state.
@@ -215,7 +275,7 @@ def scan_cells(p, r, h, world, i0, i1, j0, j1, k0, k1, best, mode):
                 if ci < 0:
                     continue
                 bx, by, bz = cx * S, cy * S, cz * S
-                best = scan_chunk(p, r, h, world, ci, bx, by, bz, max(i0, bx), min(i1, bx + S - 1),
+                best = scan_chunk(p, r, h, d, world, ci, bx, by, bz, max(i0, bx), min(i1, bx + S - 1),
                                   max(j0, by), min(j1, by + S - 1), max(k0, bz), min(k1, bz + S - 1), best, mode)
                 if mode == ENTERS and best.axes != 0:
                     return best

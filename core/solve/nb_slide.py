@@ -1,8 +1,17 @@
-"""Numba kernels of one entity-frame's reference solve: sweep, slide, repeat (up to ``passes``).
+"""Numba kernels of one entity-frame's reference solve: sweep, slide, repeat, then the skin.
 
-Each pass finds the earliest contact of the remaining motion (``nb_sweep`` narrow phase, broad
-phase chosen by ``broad``), moves there, stops ``skin`` short of the hit face, removes the motion
-along the hit normal and carries the rest into the next pass (slide).
+Semantics (the README's "The reference solver" states the same):
+- each pass finds the earliest contact of the remaining motion (``nb_narrow``: touching is not
+  contact, see its tie rules; broad phase chosen by ``broad``), moves to the exact contact,
+  removes the motion along the hit normal and carries the rest, scaled by 1 - t, into the next
+  pass (slide), up to ``passes`` passes;
+- the skin is applied once, to the end: every axis blocked in some pass backs off ``skin`` from
+  its hit face, against the motion, but never behind the start of the pass that blocked it; and
+  the whole back-off is capped at half the free clearance behind the box: if the box moving along
+  the back-off would come into contact with solid at fraction t_b < 1 of it (by the same contact
+  rule, so a box inside solid is not backed off deeper into it), it goes only t_b / 2 of the way.
+  So the back-off never creates a contact the exact solve does not have: a box that fits a gap to
+  within less than a skin slides through it, and one exactly as tall as a tunnel is not backed off.
 """
 from __future__ import annotations
 
@@ -12,7 +21,7 @@ import numpy as np
 from resweep.core.jit.nb_float import fl
 from resweep.core.jit.nb_jit import hot, kernel
 from resweep.core.solve.settings import AUTO, SCAN
-from resweep.core.solve.nb_narrow import ENTERS, FIRST_HIT, blocked_axes, scan_cells, start_best
+from resweep.core.solve.nb_narrow import ENTERS, FIRST_HIT, blocked_axes, scan_cells, start_best, touch_margin
 from resweep.core.solve.nb_walk import walk_cells
 from resweep.core.world.nb_world import sweep_range
 
@@ -23,7 +32,7 @@ AUTO_CELLS = 128
 
 @kernel(inline="always")
 def search(p, r, h, world, broad, mode, stack):
-    """Search state (see nb_sweep) of the straight motion p -> p + r against the world."""
+    """Search state (see nb_narrow.Search) of the straight motion p -> p + r against the world."""
     best = start_best(world.voxel_size)
     # A run-time int, not the caller's literal: one compiled walk and scan serve both modes
     # (numba would otherwise compile each for every literal mode, doubling compile time).
@@ -31,37 +40,63 @@ def search(p, r, h, world, broad, mode, stack):
     i0, i1, j0, j1, k0, k1 = sweep_range(p, r, h, world)
     if i0 > i1 or j0 > j1 or k0 > k1:
         return best
+    d = touch_margin(p, r, h, world.voxel_size)
     if broad == SCAN or (broad == AUTO and float(i1 - i0 + 1) * float(j1 - j0 + 1) * float(k1 - k0 + 1)
                          <= AUTO_CELLS):
-        return scan_cells(p, r, h, world, i0, i1, j0, j1, k0, k1, best, mode)
-    return walk_cells(p, r, h, world, i0, i1, j0, j1, k0, k1, best, mode, stack)
+        return scan_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode)
+    return walk_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode, stack)
 
 
 @kernel()  # called once per pass or row: not worth inlining (compile time)
 def slide_axis(pa, ra, tmin, rest, skin, blocked):
-    """One axis of the move to the contact: (new centre, remaining motion, hit normal component)."""
+    """One axis of the move to the contact: (contact centre, remaining motion, hit normal
+    component, backed-off centre). The backed-off centre is ``skin`` short of the contact
+    against the motion, but never behind the pass start ``pa``; it is applied only at the end of
+    the solve (see :func:`backed_off_end`). Unblocked axes keep the contact centre."""
     q = pa + ra * tmin
     if not blocked:
-        return q, ra * rest, 0
+        return q, ra * rest, 0, q
     if ra > 0:
         n = -1
-        q = q - skin
+        b = q - skin
     else:
         n = 1
-        q = q + skin
-    if (q - pa) * ra < 0:  # never back off behind the pass start
-        q = pa
-    return q, fl(ra, 0), n
+        b = q + skin
+    if (b - pa) * ra < 0:  # never back off behind the pass start
+        b = pa
+    return q, fl(ra, 0), n, b
+
+
+@hot
+def backed_off_end(p, back, h, world, broad, stack):
+    """End centre: the exact-contact end ``p`` moved to the backed-off centre ``back`` (both float
+    3-tuples), unless the box would come into contact with solid on the way; it then goes half the
+    way to that contact (the back-off is capped at half the free clearance behind the box)."""
+    b = (back[0] - p[0], back[1] - p[1], back[2] - p[2])
+    if b[0] == 0 and b[1] == 0 and b[2] == 0:
+        return back
+    tb = search(p, b, h, world, broad, FIRST_HIT, stack).tmin
+    if tb >= 1:
+        return back
+    s = tb * fl(tb, 0.5)
+    return (p[0] + b[0] * s, p[1] + b[1] * s, p[2] + b[2] * s)
 
 
 @kernel(inline="always")
 def solve_row(p0, m, h, world, skin, passes, broad, stack, i, ref_end, t_out, n_out, v_out, type_out,
               cand_out, pts):
-    """Solve entity-frame ``i``: up to ``passes`` sweep-and-slide passes from ``p0`` along ``m``.
+    """Solve entity-frame ``i``: up to ``passes`` sweep-and-slide passes from ``p0`` along ``m``,
+    then the skin back-off.
+
+    Each pass moves to the exact contact (no skin), so a later pass never meets a face the
+    back-off would have pushed the box into. Every axis blocked in some pass is then backed off
+    ``skin`` from its hit face at once (never behind the start of the pass that blocked it), and
+    the whole back-off is capped at half the free clearance behind the box (:func:`backed_off_end`):
+    the back-off never creates a contact.
 
     Args:
         p0, m, h: float 3-tuples: start centre, wanted motion, half extents (world units).
-        skin: float, world units kept between the box and a hit face.
+        skin: float, world units kept between the box and a hit face when there is room.
         broad: SCAN, WALK or AUTO; stack: int64 (STACK_ROWS, 6) per-thread scratch of the walk.
     Outputs, row ``i`` written (P = passes):
         ref_end float (M, 3) reference end centre;
@@ -69,21 +104,27 @@ def solve_row(p0, m, h, world, skin, passes, broad, stack, i, ref_end, t_out, n_
         n_out int8 (M, P, 3) hit normal per pass (a unit axis, or several if faces tied);
         v_out int64 (M, P, 3) hit voxel; type_out int32 (M, P) block type or -1 if clear;
         cand_out int32 (M, P) solid boxes the narrow phase tested;
-        pts float (M, P+1, 3) centre at the start of each pass and at the end; entries after the
-            last pass repeat the end (the slide path).
+        pts float (M, P+1, 3) the slide path for display: centre at the start of each pass with
+            the axes blocked so far shown at their backed-off place (the pass itself starts from
+            the exact contact), then the end; entries after the last pass repeat the end. Per
+            axis the path moves only toward the wanted displacement.
     Returns:
-        (passes_run, any_hit)
+        (passes_run, any_hit, contact): ``contact`` is the end before the back-off (float 3-tuple):
+        on every blocked axis the exact contact centre of that axis's hit face.
 
     Inlined into its caller (one call site): passing this many arrays costs more than a pass.
     """
     vs = world.voxel_size
     p = p0
     r = m
+    bk = p0  # backed-off centre of the axes blocked so far (bits of ``blk``)
+    blk = 0
     any_hit = False
     run = 0
     for k in range(passes):
-        for a in range(3):
-            pts[i, k, a] = p[a]
+        pts[i, k, 0] = bk[0] if blk & 1 else p[0]
+        pts[i, k, 1] = bk[1] if blk & 2 else p[1]
+        pts[i, k, 2] = bk[2] if blk & 4 else p[2]
         if r[0] == 0 and r[1] == 0 and r[2] == 0:
             break
         tmin, axes, hx, hy, hz, hb, htype, cand = search(p, r, h, world, broad, FIRST_HIT, stack)
@@ -103,20 +144,27 @@ def solve_row(p0, m, h, world, skin, passes, broad, stack, i, ref_end, t_out, n_
         any_hit = True
         axes = blocked_axes(axes)
         rest = fl(vs, 1) - tmin
-        q0, r0, n0 = slide_axis(p[0], r[0], tmin, rest, skin, axes & 1)
-        q1, r1, n1 = slide_axis(p[1], r[1], tmin, rest, skin, axes & 2)
-        q2, r2, n2 = slide_axis(p[2], r[2], tmin, rest, skin, axes & 4)
+        q0, r0, n0, b0 = slide_axis(p[0], r[0], tmin, rest, skin, axes & 1)
+        q1, r1, n1, b1 = slide_axis(p[1], r[1], tmin, rest, skin, axes & 2)
+        q2, r2, n2, b2 = slide_axis(p[2], r[2], tmin, rest, skin, axes & 4)
         n_out[i, k, 0] = n0
         n_out[i, k, 1] = n1
         n_out[i, k, 2] = n2
+        # An axis is blocked at most once (its motion is then zero), so its backed-off centre is final.
+        bk = (b0 if axes & 1 else bk[0], b1 if axes & 2 else bk[1], b2 if axes & 4 else bk[2])
+        blk |= axes
         p = (q0, q1, q2)
         r = (r0, r1, r2)
+    contact = p
+    if blk != 0:
+        back = (bk[0] if blk & 1 else p[0], bk[1] if blk & 2 else p[1], bk[2] if blk & 4 else p[2])
+        p = backed_off_end(p, back, h, world, broad, stack)
     for a in range(3):
         ref_end[i, a] = p[a]
     for k in range(run, passes + 1):
         for a in range(3):
             pts[i, k, a] = p[a]
-    return run, any_hit
+    return run, any_hit, contact
 
 
 @hot

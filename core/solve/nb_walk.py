@@ -89,11 +89,12 @@ def push_halves(stack, n, r, x0, x1, y0, y1, z0, z1):
 
 
 @hot
-def walk_cells(p, r, h, world, i0, i1, j0, j1, k0, k1, best, mode, stack):
+def walk_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode, stack):
     """Same result as ``scan_cells`` over [i0, i1] x [j0, j1] x [k0, k1], visiting fewer voxels.
 
     Args:
         p, r, h: float 3-tuples (centre, motion, half extents; world units); r not all zero.
+        d: touch margins (nb_narrow.touch_margin); regions are tested without them (a superset).
         best: search state (see nb_sweep); mode: FIRST_HIT or ENTERS.
         stack: int64 (STACK_ROWS, 6) scratch, one per thread.
     Returns:
@@ -124,10 +125,10 @@ def walk_cells(p, r, h, world, i0, i1, j0, j1, k0, k1, best, mode, stack):
             continue
         # A leaf (the stack bound is never reached, see STACK_ROWS; scanning stays correct).
         if one_chunk:
-            best = scan_chunk(p, r, h, world, ci, x0 // S * S, y0 // S * S, z0 // S * S,
+            best = scan_chunk(p, r, h, d, world, ci, x0 // S * S, y0 // S * S, z0 // S * S,
                               x0, x1, y0, y1, z0, z1, best, mode)
         else:
-            best = scan_cells(p, r, h, world, x0, x1, y0, y1, z0, z1, best, mode)
+            best = scan_cells(p, r, h, d, world, x0, x1, y0, y1, z0, z1, best, mode)
         if mode == ENTERS and best.axes != 0:
             return best
     return best

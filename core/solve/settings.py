@@ -24,7 +24,8 @@ class SolverSettings:
 
     Attributes:
         tolerance: voxels; recorded and reference ends closer than this agree (default 0.01).
-        skin: voxels kept between the box and a hit face (default 0.001).
+        skin: voxels kept between the box and a hit face (default 0.001), applied once to the end
+            of the solve and capped at half the free clearance behind the box (see nb_slide).
         passes: sweep-and-slide passes per frame, 1..8 (default 3: in 3-D the slide of the slide can
             still be blocked).
         precision: "float64" or "float32"; float32 solves stay float32 throughout.

@@ -120,3 +120,15 @@ def test_correct_recording_has_no_divergence(tmp_path):
         report = check_trace(tr, SolverSettings())
     assert sum(report.counts.values()) == 0, report.divergences[:3]
     assert report.entity_frames == F * n
+
+
+def test_readme_kinds_table_and_tests_match_the_kinds_table():
+    """README's kinds table and list of precise tests say exactly what core/check/kinds.py says."""
+    from paths import ROOT
+    from resweep.core.check.kinds import TABLE
+    text = (ROOT / "README.md").read_text()
+    section = text[text.index("### Divergence kinds"):text.index("### The reference solver")]
+    rows = [ln for ln in section.splitlines() if ln.startswith("| `")]
+    assert rows == [f"| `{k.name}` | {k.severity} | {k.meaning} |" for k in TABLE]
+    tests = [ln for ln in section.splitlines() if ln.startswith("- `")]
+    assert tests == [f"- `{k.name}`: {k.test}" for k in TABLE]

@@ -105,9 +105,17 @@ def test_step_and_jump_to_next_divergence_with_keys(qtbot, demo_window):
     press(qtbot, win, Qt.Key.Key_Home)
     press(qtbot, win, Qt.Key.Key_N)
     assert win.pb.frame == tun[0] == 40
+    # It is the only tunneling of the trace: the next key press stays there.
+    assert len(tun) == 1
     press(qtbot, win, Qt.Key.Key_N)
-    assert win.pb.frame == (tun[1] if len(tun) > 1 else 40)
+    assert win.pb.frame == 40
     assert win.pb.focus == DASHER_COL
+    # Another kind, with the focus cleared (U): the next penetration of any entity after frame 40.
+    pen = np.flatnonzero((flags & (1 << KINDS.index("penetration"))).any(axis=1))
+    win.timeline.kind_box.setCurrentIndex(win.timeline.kind_box.findData("penetration"))
+    press(qtbot, win, Qt.Key.Key_U)
+    press(qtbot, win, Qt.Key.Key_N)
+    assert win.pb.frame == pen[pen > 40][0]
 
 
 def test_frame_panel_shows_the_core_numbers(qtbot, window):
