@@ -44,3 +44,17 @@ class SettingsError(ResweepError):
         self.value = value
         self.reason = reason
         super().__init__(f"{name}={value!r}: {reason}")
+
+
+class RecordingError(ResweepError):
+    """A recorder or importer was handed data that cannot become a valid trace.
+
+    Attributes:
+        path: the trace being written.
+        reason: what is wrong with the call, in plain words, without the path.
+    """
+
+    def __init__(self, path, reason: str):
+        self.path = str(path)
+        self.reason = reason
+        super().__init__(f"{self.path}: {reason}")

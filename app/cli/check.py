@@ -5,6 +5,7 @@ import gc
 import sys
 import threading
 
+from resweep.core.analysis.describe import ended_early_line
 from resweep.core.check.kinds import DEFAULT_FAIL_ON, KINDS, SEVERITY
 from resweep.core.check.stream import check_trace
 from resweep.core.errors import TraceFormatError
@@ -111,6 +112,9 @@ def run(args) -> int:
                     def progress(done, total, bar=bar):
                         bar.update(done - bar.n)
                     report = check_trace(trace, settings, limit=args.limit, progress=progress)
+                early = ended_early_line(trace)
+            if early and not args.quiet:
+                sys.stderr.write(f"resweep check: {path}: {early}\n")
         except TraceFormatError as exc:
             sys.stderr.write(f"resweep check: {exc.one_line()}\n")
             status = EXIT_USAGE

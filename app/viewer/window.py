@@ -16,6 +16,7 @@ from PyQt6.QtWidgets import (QApplication, QDialog, QDockWidget, QFileDialog, QH
                              QMessageBox, QProgressBar, QPushButton, QTableWidget, QTableWidgetItem, QVBoxLayout,
                              QWidget)
 
+from resweep.core.analysis.describe import ended_early_line
 from resweep.core.errors import ResweepError
 from resweep.core.solve.settings import SolverSettings
 
@@ -256,7 +257,10 @@ class MainWindow(QMainWindow):
         if old is not None:
             old.close()
         self._add_recent(path)
-        self.setWindowTitle(f"{Path(path).name} — resweep view")
+        early = ended_early_line(tr)
+        if early:
+            note.insert(0, early)
+        self.setWindowTitle(f"{Path(path).name}{' (ended early)' if early else ''} — resweep view")
         self.status("; ".join(note) if note else f"opened {path}: {tr.frame_count} frames, "
                     f"{tr.entity_count} entities")
         if self.viewport is not None:
