@@ -184,17 +184,23 @@ class Recorder:
     def _write_frames(self, k: int, N: int):
         F = self._frames
         dt = self.frame_dtype
-        vec = {name: np.zeros((k, N, 3), dt) for name in (*FRAME_VECTORS, "half_extents")}
-        flag = {name: np.zeros((k, N), bool) for name in ("active", "grounded")}
+        # Only the columns these frames touch are written: storage chunks of entities that left
+        # stay unallocated (they read as the fill value, inactive), so churn does not fill the disk.
+        lo = min((int(r.cols.min()) for r in self._pending if len(r.cols)), default=N)
+        hi = max((int(r.cols.max()) + 1 for r in self._pending if len(r.cols)), default=N)
+        lo = min(lo, hi)
+        vec = {name: np.zeros((k, hi - lo, 3), dt) for name in (*FRAME_VECTORS, "half_extents")}
+        flag = {name: np.zeros((k, hi - lo), bool) for name in ("active", "grounded")}
         for j, r in enumerate(self._pending):
-            c = r.cols
+            c = r.cols - lo
             vec["start"][j, c], vec["motion"][j, c], vec["end"][j, c] = r.start, r.motion, r.end
             vec["half_extents"][j, c] = r.half
             flag["active"][j, c], flag["grounded"][j, c] = r.active, r.grounded
         for name, arr in (*vec.items(), *flag.items()):
             ds = self._ds[name]
             ds.resize((F + k, N) + ds.shape[2:])
-            ds[F:F + k, :N] = arr
+            if hi > lo:
+                ds[F:F + k, lo:hi] = arr
         ts = self._ds["time"]
         ts.resize((F + k,))
         ts[F:] = [r.time for r in self._pending]
