@@ -37,8 +37,8 @@ class EntityTable:
     """Entity columns in order of first appearance.
 
     Attributes:
-        ids: list of int; first_half: list of float64 (3,) (size at first appearance, the
-        trace's entity table); names: list of str; current_half: float64 (cap, 3), last size.
+        ids: list of int; first_half: list of float64 (3,) (size on the first active row, else
+        at first appearance: the trace's entity table); names: list of str; current_half: float64 (cap, 3), last size.
     """
 
     def __init__(self, path):
@@ -47,6 +47,8 @@ class EntityTable:
         self.first_half: list[np.ndarray] = []
         self.names: list[str] = []
         self.col: dict[int, int] = {}
+        self.seen_active: list[bool] = []
+        self.dirty: set[int] = set()  # columns whose table size changed after being stored
         self.current_half = np.zeros((16, 3), np.float64)
 
     def __len__(self) -> int:
@@ -65,11 +67,22 @@ class EntityTable:
             self.current_half[cols] = half
         return cols
 
+    def note_active(self, cols: np.ndarray, active: np.ndarray):
+        """The table size of an entity is its size on its first active row (inactive rows may hold
+        placeholders); columns whose table size changes are added to ``dirty``."""
+        for c in cols[active].tolist():
+            if not self.seen_active[c]:
+                self.seen_active[c] = True
+                if not np.array_equal(self.first_half[c], self.current_half[c]):
+                    self.first_half[c] = self.current_half[c].copy()
+                    self.dirty.add(c)
+
     def _add(self, eid: int, half: np.ndarray, name) -> int:
         c = len(self.ids)
         self.ids.append(eid)
         self.first_half.append(np.array(half, np.float64))
         self.names.append(str(name))
+        self.seen_active.append(False)
         self.col[eid] = c
         if c >= len(self.current_half):
             self.current_half = np.concatenate([self.current_half, np.zeros_like(self.current_half)])
@@ -87,9 +100,11 @@ def frame_rows(path, frame: int, time: float, ids, start, motion, end, half, act
     h = None if half is None else _rows3(path, frame, "half_extents", half, n)
     if names is not None and len(names) != n:
         raise RecordingError(path, f"frame {frame}: {len(names)} names for {n} entities")
+    act = _flags(path, frame, "active", active, n, True)
+    ground = _flags(path, frame, "grounded", grounded, n, False)
     cols = table.columns(frame, ids, h, names)
-    return FrameRows(float(time), ids, cols, *vec, table.current_half[cols].copy(),
-                     _flags(path, frame, "active", active, n, True), _flags(path, frame, "grounded", grounded, n, False))
+    table.note_active(cols, act)
+    return FrameRows(float(time), ids, cols, *vec, table.current_half[cols].copy(), act, ground)
 
 
 def check_edit(path, frame: int, x, y, z, block_type, type_count: int) -> tuple:
@@ -104,8 +119,8 @@ def check_edit(path, frame: int, x, y, z, block_type, type_count: int) -> tuple:
 
 def _rows3(path, frame, name, v, n) -> np.ndarray:
     a = np.asarray(v, np.float64)
-    if a.shape == (3,) and n == 1:
-        a = a.reshape(1, 3)
+    if (a.shape == (3,) and n == 1) or (a.size == 0 and n == 0):
+        a = a.reshape(n, 3)
     if a.shape != (n, 3):
         raise RecordingError(path, f"frame {frame}: {name} must have shape ({n}, 3), got {a.shape}")
     return a

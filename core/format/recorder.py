@@ -111,6 +111,11 @@ class Recorder:
         """Frames recorded so far (on disk or pending)."""
         return self._frames + len(self._pending)
 
+    @property
+    def entity_count(self) -> int:
+        """Entities seen so far."""
+        return len(self._entities)
+
     def frame(self, time: float, ids, start, motion, end, half_extents=None, active=None, grounded=None,
               names=None):
         """Record one frame.
@@ -155,7 +160,7 @@ class Recorder:
         """Write pending frames, entities and edits, then commit them (see the module docstring)."""
         self._need_open()
         k, N = len(self._pending), len(self._entities)
-        if not k and N == self._n_written and not self._edits:
+        if not k and N == self._n_written and not self._edits and not self._entities.dirty:
             return
         self._write_entities(N)
         if k:
@@ -171,9 +176,14 @@ class Recorder:
 
     def _write_entities(self, N: int):
         a = self._n_written
+        ent = self._entities
+        # An entity first stored while inactive gets its real size once active: that row is
+        # rewritten in place (it has no active committed rows, so a torn write cannot matter).
+        for c in sorted(c for c in ent.dirty if c < a):
+            self._ds["table_half"][c] = ent.first_half[c]
+        ent.dirty.clear()
         if N == a:
             return
-        ent = self._entities
         for key in ("id", "table_half", "name"):
             self._ds[key].resize((N,) + self._ds[key].shape[1:])
         self._ds["id"][a:N] = np.asarray(ent.ids[a:N], np.int64)

@@ -122,9 +122,12 @@ class RingRecorder:
             vec["start"][j, lc], vec["motion"][j, lc], vec["end"][j, lc] = r.start, r.motion, r.end
             vec["half"][j, lc] = r.half
             active[j, lc], grounded[j, lc] = r.active, r.grounded
-            new = lc[~filled[lc]]
+            new = lc[~filled[lc] & r.active]  # table size: the first active row's (as Recorder)
             table_half[new] = vec["half"][j, new]
             filled[new] = True
+        if not filled.all() and k:  # never active in the window: the size of the first row held
+            first_row = (vec["half"] != 0).any(-1).argmax(axis=0)
+            table_half[~filled] = vec["half"][first_row, np.arange(N)][~filled]
         edits = np.asarray(list(self._edits), np.int64).reshape(-1, 5)
         edits[:, 0] -= self._first
         origin, blocks = self.world()
