@@ -125,7 +125,9 @@ def after(f):
     if mode == "external":
         print(f, flush=True)
         time.sleep(0.002)
-rh.record(rec, 3000, after)
+    if mode == "slow":
+        time.sleep(0.01)
+rh.record(rec, n if mode == "slow" else 3000, after)
 rec.close()
 """
 
@@ -157,3 +159,16 @@ def record_and_kill(tmp_path, mode, n, parent_kill_at=None):
         proc.stdout.close()
     assert proc.returncode == -signal.SIGKILL
     return path, last
+
+
+def start_slow_recorder(path, frames: int):
+    """A child process recording ``frames`` frames of the scenario at about 100 per second, then
+    closing the trace. Returns the Popen once the trace file exists (header and world on disk)."""
+    import time
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(TESTS), os.environ.get("PYTHONPATH", "")]))
+    proc = subprocess.Popen([sys.executable, "-c", CHILD, "slow", str(frames), str(path), str(FLUSH)], env=env)
+    deadline = time.monotonic() + 60
+    while not os.path.exists(path):
+        assert proc.poll() is None and time.monotonic() < deadline, "recorder did not start"
+        time.sleep(0.02)
+    return proc

@@ -98,6 +98,9 @@ def run(args) -> int:
             sys.stderr.write(f"resweep check: error: --threads must be in 1..{numba.config.NUMBA_NUM_THREADS}\n")
             return EXIT_USAGE
         numba.set_num_threads(args.threads)
+    if getattr(args, "follow", False):
+        from resweep.app.cli.check_follow import run_follow
+        return run_follow(args, settings, fail_on, print_summary, compile_notice)
     show_progress = not args.quiet and sys.stderr.isatty()
     json_to_stdout = args.json == "-"
     warmed = set()

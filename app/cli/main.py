@@ -78,6 +78,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="divergences listed per trace (counts stay exact; default 1000)")
     c.add_argument("--threads", type=int, default=None, metavar="N", help="solver threads (default: all cores)")
     c.add_argument("--quiet", action="store_true", help="no progress bar and no summary")
+    c.add_argument("--follow", action="store_true",
+                   help="check a trace a recorder is still writing, as frames are flushed; ends when the writer "
+                        "closes it (Ctrl-C: counts so far)")
 
     i = sub.add_parser("info", help="describe a trace and list validation problems")
     i.add_argument("trace", metavar="TRACE")
