@@ -90,6 +90,8 @@ def build_parser() -> argparse.ArgumentParser:
     v.add_argument("trace", nargs="?", metavar="TRACE", help="trace to open (default: the bundled demo)")
     v.add_argument("--frame", type=_positive_int, default=0, metavar="N")
     v.add_argument("--entity", type=int, default=None, metavar="ID")
+    v.add_argument("--follow", action="store_true",
+                   help="pick up frames a recorder keeps flushing to TRACE (View > Follow recording)")
 
     s = sub.add_parser("snapshot", help="render the viewer picture off screen to a PNG")
     s.add_argument("trace", metavar="TRACE")

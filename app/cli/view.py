@@ -34,4 +34,4 @@ def run(args) -> int:
                          f"start); {hint}\n")
         return EXIT_USAGE
     from resweep.app.viewer.window import run_window
-    return run_window(args.trace, args.frame, args.entity)
+    return run_window(args.trace, args.frame, args.entity, follow=getattr(args, "follow", False))

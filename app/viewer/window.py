@@ -24,6 +24,7 @@ from resweep.app.viewer.panels import EntitiesPanel, FramePanel, SettingsPanel
 from resweep.app.viewer.playback import Playback
 from resweep.app.viewer.report_md import frame_facts, report_markdown, snapshot_command
 from resweep.app.viewer.flags import TraceFlags
+from resweep.app.viewer.follow import RecordingFollower
 from resweep.app.viewer.timeline import ACCENT, GROOVE, INK, PANEL, Timeline, draw_icon
 from resweep.app.viewer.worker import TraceWorker, error_line
 
@@ -52,6 +53,7 @@ class MainWindow(QMainWindow):
         self.state = None  # FrameState on screen
         self.flags: TraceFlags | None = None
         self.worker = TraceWorker(session_factory or default_session_factory, self)
+        self.follower = RecordingFollower(self)
         self._pending: dict = {}
         self._solved_upto = 0
         self._camera = "follow"
@@ -192,6 +194,11 @@ class MainWindow(QMainWindow):
         self.act_trail = A(v, "Show trail", self._toggle_opts, ["T"], "View", True)
         for a in (self.act_others, self.act_swept, self.act_trail):
             a.setChecked(True)
+        v.addSeparator()
+        self.act_follow = A(v, "Follow recording (pick up flushed frames)", self.follower.set_enabled, ["Ctrl+F"],
+                            "View", True)
+        self.act_newest = A(v, "Stay on the newest frame while following", self.follower.set_newest, [],
+                            "View", True)
         v.addSeparator()
         for d in (self.dock_entities, self.dock_frame, self.dock_settings):
             v.addAction(d.toggleViewAction())
@@ -578,8 +585,10 @@ def apply_identity(app: QApplication):
     app.setWindowIcon(draw_icon("logo", size=64))
 
 
-def run_window(trace: str | None, frame: int = 0, entity_id: int | None = None) -> int:
-    """Start the application, open ``trace`` (the demo when None) and run until the window closes."""
+def run_window(trace: str | None, frame: int = 0, entity_id: int | None = None, follow: bool = False) -> int:
+    """Start the application, open ``trace`` (the demo when None) and run until the window closes.
+
+    ``follow``: pick up frames a recorder keeps flushing to ``trace`` (the "Follow recording" toggle)."""
     import sys
     app = QApplication.instance() or QApplication(sys.argv[:1])
     app.setOrganizationName(ORG)
@@ -588,4 +597,6 @@ def run_window(trace: str | None, frame: int = 0, entity_id: int | None = None) 
     win = MainWindow()
     win.show()
     win.open_path(trace if trace is not None else demo_path(), frame, entity_id)
+    if follow:
+        win.act_follow.trigger()  # checks the toggle and starts following
     return app.exec()

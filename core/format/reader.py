@@ -377,6 +377,16 @@ class Trace:
         self._load_frames()
         return self.frame_count - before
 
+    def poll_committed(self):
+        """(frames, closed) of the commit record as it is on disk now, or None when this is not
+        a recorder file opened in SWMR mode. Changes nothing in this Trace (see :meth:`refresh`)."""
+        if self.committed is None or not self._f.swmr:
+            return None
+        ds = self._f.file["/frames/committed"]
+        ds.refresh()
+        c = self._f.read(ds)
+        return int(c[0]), bool(c[3])
+
     def entity_index(self, entity_id: int) -> int:
         """Column of engine id ``entity_id``, or -1."""
         hit = np.flatnonzero(self.ids == int(entity_id))
