@@ -49,14 +49,18 @@ class SafeFile:
         try:
             self.file = h5py.File(self.path, "r", locking=False, swmr=self.swmr)
         except OSError as exc:
-            if self.swmr or "already open for write" not in str(exc):
+            if self.swmr:
                 raise TraceFormatError(path, None, f"cannot open as HDF5 (truncated or corrupt?): {exc}") from None
-            # A recorder holds the file in SWMR mode, or was killed holding it: read it as SWMR.
+            # A recorder holds the file in SWMR mode or was killed holding it ("already open for
+            # write"), or this process has it open in SWMR read mode ("different flags"): read as SWMR.
             self.swmr = True
             try:
                 self.file = h5py.File(self.path, "r", locking=False, swmr=True)
-            except OSError as exc2:
-                raise TraceFormatError(path, None, f"cannot open as HDF5 (truncated or corrupt?): {exc2}") from None
+            except OSError:
+                raise TraceFormatError(path, None, f"cannot open as HDF5 (truncated or corrupt?): {exc}") from None
+        # HDF5 shares one open file per process: a file this process already reads in SWMR mode
+        # opens in that mode again, with the older metadata that SWMR refreshes must update.
+        self.swmr = self.swmr or bool(getattr(self.file, "swmr_mode", False))
 
     def close(self):
         try:

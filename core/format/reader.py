@@ -128,6 +128,8 @@ class Trace:
         """Committed rows: ``ds`` cut to the committed sizes ``{axis: rows}`` (refused if shorter)."""
         if self.committed is None:
             return ds
+        if self._f.swmr and any(ds.shape[a] < n for a, n in axis_sizes.items()):
+            ds.refresh()  # HDF5 shares one file per process: another handle may hold older metadata
         for axis, n in axis_sizes.items():
             if ds.shape[axis] < n:
                 raise self._f.fail(ds.name, f"has {ds.shape[axis]} rows on axis {axis} but {why} commits {n}")
