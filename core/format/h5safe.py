@@ -56,7 +56,7 @@ class SafeFile:
             self.swmr = True
             try:
                 self.file = h5py.File(self.path, "r", locking=False, swmr=True)
-            except OSError:
+            except (OSError, RuntimeError, ValueError):  # the first error says what is wrong
                 raise TraceFormatError(path, None, f"cannot open as HDF5 (truncated or corrupt?): {exc}") from None
         # HDF5 shares one open file per process: a file this process already reads in SWMR mode
         # opens in that mode again, with the older metadata that SWMR refreshes must update.
