@@ -46,8 +46,8 @@ class SettingsError(ResweepError):
         super().__init__(f"{name}={value!r}: {reason}")
 
 
-class ReportFileError(ResweepError):
-    """A saved JSON report (e.g. a farm baseline) is unreadable or not a resweep report.
+class FileProblem(ResweepError):
+    """Something is wrong with one file (the base of the file errors below).
 
     Attributes:
         path: the file as the user named it.
@@ -58,6 +58,10 @@ class ReportFileError(ResweepError):
         self.path = str(path)
         self.reason = reason
         super().__init__(f"{self.path}: {reason}")
+
+
+class ReportFileError(FileProblem):
+    """A saved JSON report (e.g. a farm baseline) is unreadable or not a resweep report."""
 
 
 class ClusterError(ResweepError):
@@ -72,3 +76,8 @@ class ClusterError(ResweepError):
         self.address = str(address)
         self.reason = reason
         super().__init__(f"{self.address}: {reason}")
+
+
+class RecordingError(FileProblem):
+    """A recorder or importer was handed data that cannot become a valid trace (``path``: the
+    trace being written)."""

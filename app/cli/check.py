@@ -5,6 +5,7 @@ import gc
 import sys
 import threading
 
+from resweep.core.analysis.describe import ended_early_line
 from resweep.core.check.kinds import DEFAULT_FAIL_ON, KINDS, SEVERITY
 from resweep.core.check.stream import check_trace
 from resweep.core.errors import TraceFormatError
@@ -151,6 +152,9 @@ def run(args) -> int:
             return EXIT_USAGE
     if set_threads(args.threads) is None:
         return EXIT_USAGE
+    if getattr(args, "follow", False):
+        from resweep.app.cli.check_follow import run_follow
+        return run_follow(args, settings, fail_on, print_summary, compile_notice)
     bad = open_all(args.traces)
     if bad:
         for line in bad:
@@ -170,6 +174,9 @@ def run(args) -> int:
                     def progress(done, total, bar=bar):
                         bar.update(done - bar.n)
                     report = check_trace(trace, settings, limit=args.limit, progress=progress)
+                early = ended_early_line(trace)
+            if early and not args.quiet:
+                sys.stderr.write(f"resweep check: {path}: {early}\n")
         except TraceFormatError as exc:  # a frame block that fails to read part-way through
             sys.stderr.write(f"resweep check: {exc.one_line()}\n")
             status = EXIT_USAGE

@@ -36,6 +36,11 @@ def run(args) -> int:
     w("  block types   " + ", ".join(f"{t['type']} {t['name']} ({t['voxels']} voxels)"
                                      for t in info["block_types"] if t["voxels"] or t["type"] < 8) + "\n")
     w(f"  active rows   {info['active_entity_frames']}, invalid {info['invalid_entity_frames']}\n")
+    if info["ended_early"]:
+        e = info["ended_early"]
+        t = e["last_flushed_time"]
+        w(f"  recording     ended early: {e['frames_read']} frames read, "
+          + ("no frame flushed" if t is None else f"last flushed at {t:.3f} s") + " (the recorder did not close it)\n")
     if info["problems"]:
         w("  problems:\n")
         for p in info["problems"]:

@@ -131,6 +131,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="solver threads (default: all cores; more than the cores is clamped with a notice)")
     c.add_argument("--quiet", action="store_true", help="no progress bar and no summary")
     farm_opts(c)
+    c.add_argument("--follow", action="store_true",
+                   help="check a trace a recorder is still writing, as frames are flushed; ends when the writer "
+                        "closes it (Ctrl-C: counts so far)")
 
     i = sub.add_parser("info", help="describe a trace and list validation problems")
     i.add_argument("trace", metavar="TRACE")
@@ -141,6 +144,8 @@ def build_parser() -> argparse.ArgumentParser:
     v.add_argument("--frame", type=_positive_int, default=0, metavar="N")
     v.add_argument("--entity", type=int, default=None, metavar="ID")
     solver_opts(v, remembered=True)
+    v.add_argument("--follow", action="store_true",
+                   help="pick up frames a recorder keeps flushing to TRACE (View > Follow recording)")
 
     s = sub.add_parser("snapshot", help="render the viewer picture off screen to a PNG or JPEG")
     s.add_argument("trace", metavar="TRACE")
@@ -153,7 +158,27 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("-o", "--output", required=True, metavar="FILE|DIR",
                    help="picture file (.png, .jpg or .jpeg); with --frames an existing folder")
     solver_opts(s)
+
+    im = sub.add_parser("import", help="turn a JSON Lines or CSV log into a trace",
+                        description="Import a lines log (one record per line; schema in the core's "
+                                    "format/importers/log_format.md and log_schema.json) into a trace, streaming.")
+    im.add_argument("log", metavar="LOG")
+    im.add_argument("--world", metavar="WORLD", help="JSON Lines file with the header, chunk, voxel and edit records")
+    im.add_argument("-o", "--output", required=True, metavar="TRACE", help="trace to write (atomically)")
+    im.add_argument("--format", choices=("auto", "jsonl", "csv"), default="auto",
+                    help="LOG format (default: by extension, then by content)")
+    im.add_argument("--skip-bad", action="store_true", help="skip bad lines, counting them by reason")
+    im.add_argument("--flush-every", type=_positive_int, default=256, metavar="N", help=argparse.SUPPRESS)
+    im.add_argument("--quiet", action="store_true", help="no progress bar and no summary")
+
+    ex = sub.add_parser("export-lines", help="write a trace as a JSON Lines log (the import format)")
+    ex.add_argument("trace", metavar="TRACE")
+    ex.add_argument("-o", "--output", required=True, metavar="LOG|-")
     return p
+
+
+#: Commands whose module name differs from the command (keywords, dashes).
+_MODULES = {"import": "import_", "export-lines": "export_lines"}
 
 
 def main(argv=None) -> int:
@@ -162,7 +187,7 @@ def main(argv=None) -> int:
     from resweep.core.errors import ResweepError
     try:
         # One module per command, imported only when used (a check never loads the viewer).
-        command = importlib.import_module(f"resweep.app.cli.{args.command}")
+        command = importlib.import_module(f"resweep.app.cli.{_MODULES.get(args.command, args.command)}")
         return command.run(args)
     except ResweepError as exc:
         sys.stderr.write(f"resweep {args.command}: {exc}\n")

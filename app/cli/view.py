@@ -44,7 +44,7 @@ def run(args) -> int:
                          f"start); {hint}\n")
         return EXIT_USAGE
     from resweep.app.viewer.window import run_window
-    return run_window(path, args.frame, args.entity, overrides)
+    return run_window(path, args.frame, args.entity, overrides, follow=getattr(args, "follow", False))
 
 
 def _validate(path, frame: int, entity_id, overrides: dict) -> None:

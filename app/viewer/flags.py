@@ -76,12 +76,15 @@ class TraceFlags:
         """Store one streamed segment of ``check_trace`` results (``on_block``)."""
         fr = np.asarray(block.frame, np.int64)
         col = np.asarray(block.column, np.int64)
-        self.flags[fr, col] = block.rows.flags
-        self.mark_solved(fr)
+        # a trace still being recorded may have grown since these flags were sized: keep what fits
+        keep = (fr < self.frame_count) & (col < self.entity_count)
+        self.flags[fr[keep], col[keep]] = np.asarray(block.rows.flags)[keep]
+        self.mark_solved(fr[keep])
 
     def mark_solved(self, frames):
         """Mark frames done, e.g. a ``progress`` range whose rows were all inactive."""
-        self.solved[np.asarray(frames, np.int64)] = True
+        frames = np.asarray(frames, np.int64)
+        self.solved[frames[frames < self.frame_count]] = True
         self.version += 1
 
     def set_frame(self, frame: int, flags: np.ndarray, active: np.ndarray):

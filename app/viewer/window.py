@@ -16,6 +16,7 @@ from PyQt6.QtWidgets import (QApplication, QDialog, QDockWidget, QFileDialog, QH
                              QMessageBox, QProgressBar, QPushButton, QTableWidget, QTableWidgetItem, QVBoxLayout,
                              QWidget)
 
+from resweep.core.analysis.describe import ended_early_line
 from resweep.core.errors import ResweepError
 from resweep.core.solve.settings import SolverSettings
 
@@ -24,6 +25,7 @@ from resweep.app.viewer.playback import Playback
 from resweep.app.viewer.report_md import frame_facts, report_markdown, snapshot_command
 from resweep.app.viewer.flags import TraceFlags
 from resweep.app.viewer.hunt import HuntTools
+from resweep.app.viewer.follow import RecordingFollower
 from resweep.app.viewer.timeline import ACCENT, GROOVE, INK, PANEL, Timeline, draw_icon
 from resweep.app.viewer.worker import TraceWorker, error_line
 from resweep.sample_traces import demo_path
@@ -53,6 +55,7 @@ class MainWindow(QMainWindow):
         self.state = None  # FrameState on screen
         self.flags: TraceFlags | None = None
         self.worker = TraceWorker(session_factory or default_session_factory, self)
+        self.follower = RecordingFollower(self)
         self._pending: dict = {}
         self._solved_upto = 0
         self._camera = "story"
@@ -196,6 +199,11 @@ class MainWindow(QMainWindow):
         for a in (self.act_others, self.act_swept, self.act_trail):
             a.setChecked(True)
         v.addSeparator()
+        self.act_follow = A(v, "Follow recording (pick up flushed frames)", self.follower.set_enabled, ["Ctrl+F"],
+                            "View", True)
+        self.act_newest = A(v, "Stay on the newest frame while following", self.follower.set_newest, [],
+                            "View", True)
+        v.addSeparator()
         for d in (self.dock_entities, self.dock_frame, self.dock_settings):
             v.addAction(d.toggleViewAction())
         h = m.addMenu("&Help")
@@ -260,7 +268,10 @@ class MainWindow(QMainWindow):
         if old is not None:
             old.close()
         self._add_recent(path)
-        self.setWindowTitle(f"{Path(path).name} — resweep view")
+        early = ended_early_line(tr)
+        if early:
+            note.insert(0, early)
+        self.setWindowTitle(f"{Path(path).name}{' (ended early)' if early else ''} — resweep view")
         self.status("; ".join(note) if note else f"opened {path}: {tr.frame_count} frames, "
                     f"{tr.entity_count} entities")
         if self.viewport is not None:
@@ -567,9 +578,12 @@ def apply_identity(app: QApplication):
     app.setWindowIcon(draw_icon("logo", size=64))
 
 
-def run_window(trace: str | None, frame: int = 0, entity_id: int | None = None, settings: dict | None = None) -> int:
+def run_window(trace: str | None, frame: int = 0, entity_id: int | None = None, settings: dict | None = None,
+               follow: bool = False) -> int:
     """Start the application, open ``trace`` (the demo when None) and run until the window closes.
-    ``settings``: SolverSettings fields that override the remembered ones for this run."""
+
+    ``settings``: SolverSettings fields that override the remembered ones for this run. ``follow``:
+    pick up frames a recorder keeps flushing to ``trace`` (the "Follow recording" toggle)."""
     import sys
     app = QApplication.instance() or QApplication(sys.argv[:1])
     app.setOrganizationName(ORG)
@@ -580,4 +594,6 @@ def run_window(trace: str | None, frame: int = 0, entity_id: int | None = None, 
         win.pb.update_settings(**settings)
     win.show()
     win.open_path(trace if trace is not None else demo_path(), frame, entity_id)
+    if follow:
+        win.act_follow.trigger()  # checks the toggle and starts following
     return app.exec()

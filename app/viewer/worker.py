@@ -143,6 +143,9 @@ class TraceWorker(QObject):
     def solving(self) -> bool:
         return self._solve is not None
 
+    def loading(self) -> bool:
+        return self._load is not None
+
     # -- thread bodies (no Qt objects touched here except emitting signals) --------------------
     def _run_load(self, job: _Job, path: str, settings: SolverSettings):
         try:

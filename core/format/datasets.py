@@ -63,6 +63,10 @@ TABLE: tuple[DatasetSpec, ...] = (
     DatasetSpec("/frames/active", ("bool",), ("F", "N"), False, "bool", "row recorded (default all true)"),
     DatasetSpec("/frames/half_extents", ("float",), ("F", "N", 3), False, "float32|float64",
                 "per-frame half extents (crouching)"),
+    DatasetSpec("/frames/grounded", ("bool",), ("F", "N"), False, "bool",
+                "engine said the entity stood on ground this frame (default unknown)"),
+    DatasetSpec("/frames/committed", ("integer",), (4,), False, "int64",
+                "recorder files: [frames, entities, edits, closed] safely on disk"),
 )
 BY_PATH: dict[str, DatasetSpec] = {d.path: d for d in TABLE}
 #: The per-frame datasets holding positions, in the order readers hand them out.

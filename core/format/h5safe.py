@@ -27,7 +27,8 @@ _MAX_LINK_HOPS = 16
 class SafeFile:
     """A read-only h5py file whose objects are fetched through link and storage checks."""
 
-    def __init__(self, path):
+    def __init__(self, path, swmr: bool = False):
+        """``swmr``: open for reading while a recorder may still append (HDF5 SWMR read mode)."""
         self.path = str(path)
         try:
             size = os.path.getsize(self.path)
@@ -44,10 +45,22 @@ class SafeFile:
             raise TraceFormatError(path, None, f"cannot open: {exc}") from None
         if not is_h5:
             raise TraceFormatError(path, None, "not an HDF5 file (no HDF5 signature)")
+        self.swmr = bool(swmr)
         try:
-            self.file = h5py.File(self.path, "r", locking=False)
+            self.file = h5py.File(self.path, "r", locking=False, swmr=self.swmr)
         except OSError as exc:
-            raise TraceFormatError(path, None, f"cannot open as HDF5 (truncated or corrupt?): {exc}") from None
+            if self.swmr:
+                raise TraceFormatError(path, None, f"cannot open as HDF5 (truncated or corrupt?): {exc}") from None
+            # A recorder holds the file in SWMR mode or was killed holding it ("already open for
+            # write"), or this process has it open in SWMR read mode ("different flags"): read as SWMR.
+            self.swmr = True
+            try:
+                self.file = h5py.File(self.path, "r", locking=False, swmr=True)
+            except (OSError, RuntimeError, ValueError):  # the first error says what is wrong
+                raise TraceFormatError(path, None, f"cannot open as HDF5 (truncated or corrupt?): {exc}") from None
+        # HDF5 shares one open file per process: a file this process already reads in SWMR mode
+        # opens in that mode again, with the older metadata that SWMR refreshes must update.
+        self.swmr = self.swmr or bool(getattr(self.file, "swmr_mode", False))
 
     def close(self):
         try:

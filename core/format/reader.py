@@ -30,6 +30,7 @@ class FrameBlock:
         start, motion, end: float (n, N, 3) in the file's frame dtype, world units.
         active: bool (n, N).
         half: float (n, N, 3) half extents in effect per row (per-frame override or entity table).
+        grounded: bool (n, N) from ``/frames/grounded``, or None when the file has none.
     """
 
     f0: int
@@ -39,6 +40,7 @@ class FrameBlock:
     end: np.ndarray
     active: np.ndarray
     half: np.ndarray
+    grounded: np.ndarray | None = None
 
 
 class Trace:
@@ -52,10 +54,14 @@ class Trace:
         chunk_size: int; chunk_origin: int64 (C, 3); chunk_blocks: uint16 (C, S, S, S);
         edits: int64 (E, 5).
         problems: list of str, validation findings that do not stop a check (e.g. bad entity sizes).
+        committed: None, or int64 (4,) ``/frames/committed`` of a recorder file [frames,
+            entities, edits, closed]; only that prefix is read.
+        ended_early: True for a recorder file whose writer did not close it (killed, crashed,
+            or still recording); it is read up to the last flush.
     """
 
-    def __init__(self, path):
-        self._f = SafeFile(path)
+    def __init__(self, path, swmr: bool = False):
+        self._f = SafeFile(path, swmr=swmr)
         self.path = self._f.path
         try:
             self._load()
@@ -91,10 +97,42 @@ class Trace:
         self.title = _as_str(f.attr(root, "title", "")) or ""
         self.producer = _as_str(f.attr(root, "producer", "")) or ""
         self.problems: list[str] = []
+        self._load_commit()
         self._load_blocks()
         self._load_world()
+        self._load_edits()
         self._load_entities()
         self._load_frames()
+
+    def _load_commit(self):
+        """The commit record of a recorder file (see ``recorder.py``): the prefix safe to read."""
+        f = self._f
+        cd = f.dataset("/frames/committed", required=False)
+        self.committed = None
+        self.ended_early = False
+        if cd is None:
+            return
+        _check(f, cd, spec("/frames/committed"), {})
+        c = f.read(cd).astype(np.int64)
+        if (c[:3] < 0).any() or c[3] not in (0, 1):
+            raise f.fail(cd.name, f"holds {c.tolist()}; expected [frames, entities, edits] >= 0 and closed 0 or 1")
+        self.committed = c
+        self.ended_early = not bool(c[3])
+
+    def _dim(self, n: int):
+        """Expected length of a committed axis: any length in recorder files (checked by _prefix)."""
+        return None if self.committed is not None else n
+
+    def _prefix(self, ds, axis_sizes: dict, why: str):
+        """Committed rows: ``ds`` cut to the committed sizes ``{axis: rows}`` (refused if shorter)."""
+        if self.committed is None:
+            return ds
+        if self._f.swmr and any(ds.shape[a] < n for a, n in axis_sizes.items()):
+            ds.refresh()  # HDF5 shares one file per process: another handle may hold older metadata
+        for axis, n in axis_sizes.items():
+            if ds.shape[axis] < n:
+                raise self._f.fail(ds.name, f"has {ds.shape[axis]} rows on axis {axis} but {why} commits {n}")
+        return ds
 
     def _load_blocks(self):
         f = self._f
@@ -163,19 +201,26 @@ class Trace:
         if C and self.type_count < IMPLICIT_TYPES and int(blocks.max()) >= self.type_count:
             raise f.fail(bd.name, f"holds block type {int(blocks.max())}, but /blocks defines only "
                                   f"{self.type_count} types")
+        self.chunk_size = S
+        self.chunk_origin = origin
+        self.chunk_blocks = blocks
+
+    def _load_edits(self):
+        f = self._f
         ed = f.dataset("/world/edits", required=False)
         if ed is not None:
             _check(f, ed, spec("/world/edits"), {})
-            edits = f.read(ed).astype(np.int64)
+            if self.committed is not None:
+                self._prefix(ed, {0: int(self.committed[2])}, "/frames/committed")
+                edits = f.read(ed, np.s_[:int(self.committed[2])]).astype(np.int64)
+            else:
+                edits = f.read(ed).astype(np.int64)
             if (np.abs(edits[:, 1:4]) > MAX_COORD).any():
                 raise f.fail(ed.name, f"voxel coordinates beyond +-{MAX_COORD} are refused")
             if len(edits) and (edits[:, 4].min() < 0 or edits[:, 4].max() >= self.type_count):
                 raise f.fail(ed.name, f"block types must lie in 0..{self.type_count - 1}")
         else:
             edits = np.zeros((0, 5), np.int64)
-        self.chunk_size = S
-        self.chunk_origin = origin
-        self.chunk_blocks = blocks
         self.edits = edits
 
     def _load_entities(self):
@@ -183,21 +228,26 @@ class Trace:
         f.group("/entities")
         idd = f.dataset("/entities/id")
         _check(f, idd, spec("/entities/id"), {})
-        ids = f.read(idd).astype(np.int64)
+        rows = np.s_[:]
+        if self.committed is not None:
+            rows = np.s_[:int(self.committed[1])]
+            self._prefix(idd, {0: int(self.committed[1])}, "/frames/committed")
+        ids = f.read(idd, rows).astype(np.int64)
         if len(np.unique(ids)) != len(ids):
             raise f.fail(idd.name, "entity ids must be unique")
         N = len(ids)
         hd = f.dataset("/entities/half_extents")
-        _check(f, hd, spec("/entities/half_extents"), {"N": N}, " to match /entities/id")
-        half = f.read(hd).astype(np.float64)
+        _check(f, hd, spec("/entities/half_extents"), {"N": self._dim(N)}, " to match /entities/id")
+        half = f.read(self._prefix(hd, {0: N}, "/frames/committed"), rows).astype(np.float64)
         bad = ~(np.isfinite(half).all(axis=1) & (half > 0).all(axis=1))
         for i in np.flatnonzero(bad)[:5]:
             self.problems.append(f"/entities/half_extents: entity {ids[i]} has non-positive or non-finite half "
                                  f"extents {half[i].tolist()} (its rows are reported invalid)")
         nd = f.dataset("/entities/name", required=False)
         if nd is not None:
-            _check(f, nd, spec("/entities/name"), {"N": N})
-        names = f.read_strings(nd) if nd is not None else tuple(f"entity {i}" for i in ids)
+            _check(f, nd, spec("/entities/name"), {"N": self._dim(N)})
+            self._prefix(nd, {0: N}, "/frames/committed")
+        names = f.read_strings(nd)[:N] if nd is not None else tuple(f"entity {i}" for i in ids)
         self.ids = ids
         self.half_extents = half
         self.names = names
@@ -209,25 +259,30 @@ class Trace:
         N = self.entity_count
         td = f.dataset("/frames/time")
         _check(f, td, spec("/frames/time"), {})
-        F = td.shape[0]
+        F = td.shape[0] if self.committed is None else int(self.committed[0])
+        self._prefix(td, {0: F}, "/frames/committed")
+        dims = {"F": self._dim(F), "N": self._dim(N)}
         self._ds = {}
         dtype = None
         for name in FRAME_VECTORS:
             ds = f.dataset(f"/frames/{name}", whole=False)
-            _check(f, ds, spec(f"/frames/{name}"), {"F": F, "N": N}, " = (frames, entities, 3)")
+            _check(f, ds, spec(f"/frames/{name}"), dims, " = (frames, entities, 3)")
             dtype = np.promote_types(dtype, ds.dtype) if dtype is not None else ds.dtype
-            self._ds[name] = ds
-        act = f.dataset("/frames/active", required=False, whole=False)
-        if act is not None:
-            if act.dtype != np.dtype("bool") and not (act.dtype.kind in "iu" and act.dtype.itemsize == 1):
-                raise f.fail(act.name, f"dtype must be bool, found {act.dtype}")
-            _check(f, act, spec("/frames/active"), {"F": F, "N": N}, " = (frames, entities)")
-        self._ds["active"] = act
+            self._ds[name] = self._prefix(ds, {0: F, 1: N}, "/frames/committed")
+        for key, name in (("active", "active"), ("grounded", "grounded")):
+            ds = f.dataset(f"/frames/{name}", required=False, whole=False)
+            if ds is not None:
+                if ds.dtype != np.dtype("bool") and not (ds.dtype.kind in "iu" and ds.dtype.itemsize == 1):
+                    raise f.fail(ds.name, f"dtype must be bool, found {ds.dtype}")
+                _check(f, ds, spec(f"/frames/{name}"), dims, " = (frames, entities)")
+                self._prefix(ds, {0: F, 1: N}, "/frames/committed")
+            self._ds[key] = ds
         hov = f.dataset("/frames/half_extents", required=False, whole=False)
         if hov is not None:
-            _check(f, hov, spec("/frames/half_extents"), {"F": F, "N": N}, " = (frames, entities, 3)")
+            _check(f, hov, spec("/frames/half_extents"), dims, " = (frames, entities, 3)")
+            self._prefix(hov, {0: F, 1: N}, "/frames/committed")
         self._ds["half"] = hov
-        time = f.read(td)
+        time = f.read(td, np.s_[:F])
         if not np.isfinite(time).all():
             raise f.fail(td.name, "holds non-finite times")
         if (np.diff(time) < 0).any():
@@ -249,18 +304,22 @@ class Trace:
         f1 = min(self.frame_count, int(f1))
         f1 = max(f0, f1)
         rd = self._f.read
-        start = rd(self._ds["start"], np.s_[f0:f1])
-        motion = rd(self._ds["motion"], np.s_[f0:f1])
-        end = rd(self._ds["end"], np.s_[f0:f1])
+        # recorder files hold columns beyond the committed entities; other files end at N anyway
+        rows = np.s_[f0:f1, :self.entity_count]
+        start = rd(self._ds["start"], rows)
+        motion = rd(self._ds["motion"], rows)
+        end = rd(self._ds["end"], rows)
         n = f1 - f0
         act = self._ds["active"]
-        active = rd(act, np.s_[f0:f1]).astype(bool) if act is not None else np.ones((n, self.entity_count), bool)
+        active = rd(act, rows).astype(bool) if act is not None else np.ones((n, self.entity_count), bool)
         hov = self._ds["half"]
         if hov is not None:
-            half = rd(hov, np.s_[f0:f1])
+            half = rd(hov, rows)
         else:
             half = np.broadcast_to(self.half_extents[None], (n, self.entity_count, 3))
-        return FrameBlock(f0, f1, start, motion, end, active, half)
+        gd = self._ds["grounded"]
+        grounded = rd(gd, rows).astype(bool) if gd is not None else None
+        return FrameBlock(f0, f1, start, motion, end, active, half, grounded)
 
     def block_frames(self, rows: int = 1 << 17) -> int:
         """Frames per streamed block so that one block holds about ``rows`` entity-frames.
@@ -296,6 +355,39 @@ class Trace:
                 yield blk
             yield ahead.result()
 
+    @property
+    def last_time(self) -> float | None:
+        """Time of the last frame read (for a trace that ended early: the last flushed time)."""
+        return float(self.time[-1]) if len(self.time) else None
+
+    def refresh(self) -> int:
+        """Pick up frames a recorder committed since the trace was opened (or last refreshed).
+
+        Only for recorder files opened in SWMR mode (``open_trace(path, swmr=True)``); other
+        traces do not change. Returns the number of new frames.
+        """
+        if self.committed is None or not self._f.swmr:
+            return 0
+        before = self.frame_count
+        for obj in (self._f.file["/frames/committed"], self._f.file["/frames"], self._f.file["/entities"]):
+            _refresh(obj)
+        _refresh(self._f.file["/world"])
+        self._load_commit()
+        self._load_edits()
+        self._load_entities()
+        self._load_frames()
+        return self.frame_count - before
+
+    def poll_committed(self):
+        """(frames, closed) of the commit record as it is on disk now, or None when this is not
+        a recorder file opened in SWMR mode. Changes nothing in this Trace (see :meth:`refresh`)."""
+        if self.committed is None or not self._f.swmr:
+            return None
+        ds = self._f.file["/frames/committed"]
+        ds.refresh()
+        c = self._f.read(ds)
+        return int(c[0]), bool(c[3])
+
     def entity_index(self, entity_id: int) -> int:
         """Column of engine id ``entity_id``, or -1."""
         hit = np.flatnonzero(self.ids == int(entity_id))
@@ -317,9 +409,24 @@ class Trace:
         self.close()
 
 
-def open_trace(path) -> Trace:
-    """Open and validate a trace; raises :class:`TraceFormatError` with a one-line reason."""
-    return Trace(path)
+def open_trace(path, swmr: bool = False) -> Trace:
+    """Open and validate a trace; raises :class:`TraceFormatError` with a one-line reason.
+
+    ``swmr``: open in HDF5 SWMR read mode so :meth:`Trace.refresh` sees frames a recorder is
+    still appending.
+    """
+    return Trace(path, swmr=swmr)
+
+
+def _refresh(obj):
+    """Re-read the on-disk state of every dataset in ``obj`` (a group or dataset; SWMR readers)."""
+    import h5py
+    if isinstance(obj, h5py.Dataset):
+        obj.refresh()
+        return
+    for v in obj.values():
+        if isinstance(v, h5py.Dataset):
+            v.refresh()
 
 
 def _as_str(v):

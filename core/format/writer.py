@@ -1,6 +1,8 @@
 """Writer of trace format v1, for tests, the demo generator and engines written in Python."""
 from __future__ import annotations
 
+import os
+
 import h5py
 import numpy as np
 
@@ -10,9 +12,10 @@ from resweep.core.format.reader import FORMAT_NAME, FORMAT_VERSION
 
 
 def write_trace(path, *, chunk_size: int, chunk_origin, chunk_blocks, entity_ids, half_extents,
-                time, start, motion, end, active=None, frame_half_extents=None, shapes: BlockShapes | None = None,
-                edits=None, entity_names=None, voxel_size: float = 1.0, up_axis: str = "y",
-                title: str = "", producer: str = "resweep", frame_dtype=None, compression: str | None = "gzip"):
+                time, start, motion, end, active=None, frame_half_extents=None, grounded=None,
+                shapes: BlockShapes | None = None, edits=None, entity_names=None, voxel_size: float = 1.0,
+                up_axis: str = "y", title: str = "", producer: str = "resweep", frame_dtype=None,
+                compression: str | None = "gzip", atomic: bool = False):
     """Write a trace file in format v1.
 
     Args:
@@ -20,39 +23,33 @@ def write_trace(path, *, chunk_size: int, chunk_origin, chunk_blocks, entity_ids
         chunk_blocks: uint8/uint16 (C, S, S, S) block types, index [chunk, x, y, z].
         entity_ids: int (N,); half_extents: float (N, 3) world units.
         time: float (F,) seconds; start, motion, end: float (F, N, 3) world units.
-        active: bool (F, N) or None; frame_half_extents: float (F, N, 3) or None.
+        active: bool (F, N) or None; frame_half_extents: float (F, N, 3) or None;
+        grounded: bool (F, N) or None.
         shapes: block shape table or None for the implicit unit cubes.
         edits: int (E, 5) rows [frame, x, y, z, type] or None.
         frame_dtype: dtype of the frame datasets (default: float64 unless ``start`` is float32).
+        atomic: write to a temporary file beside ``path`` and rename it at the end, so ``path``
+            never names a half-written file (the temporary file is removed on failure).
     """
+    if atomic:
+        tmp = temp_path(path)
+        try:
+            write_trace(tmp, **{k: v for k, v in locals().items() if k not in ("path", "atomic", "tmp")})
+            os.replace(tmp, path)
+        except BaseException:
+            remove_quietly(tmp)
+            raise
+        return
     start = np.asarray(start)
     if frame_dtype is None:
         frame_dtype = np.float32 if start.dtype == np.float32 else np.float64
     kw = {"compression": compression, "shuffle": True} if compression else {}
     F, N = start.shape[:2]
-    blocks = np.asarray(chunk_blocks)
-    if blocks.dtype not in (np.uint8, np.uint16):
-        blocks = blocks.astype(np.uint8 if blocks.size == 0 or blocks.max() < 256 else np.uint16)
     with h5py.File(path, "w") as f:
-        f.attrs["format"] = FORMAT_NAME
-        f.attrs["version"] = np.int64(FORMAT_VERSION)
-        f.attrs["voxel_size"] = float(voxel_size)
-        f.attrs["up_axis"] = up_axis
-        if title:
-            f.attrs["title"] = title
-        if producer:
-            f.attrs["producer"] = producer
-        if shapes is not None:
-            g = f.create_group("blocks")
-            g["box_start"] = np.asarray(shapes.box_start, np.int64)
-            g["boxes"] = np.asarray(shapes.boxes, np.float64).reshape(-1, 6)
-            g["names"] = np.array(shapes.names, dtype=h5py.string_dtype())
-        w = f.create_group("world")
-        w.attrs["chunk_size"] = np.int64(chunk_size)
-        w["chunk_origin"] = np.asarray(chunk_origin, np.int64).reshape(-1, 3)
-        w.create_dataset("chunk_blocks", data=blocks, **(kw if blocks.size else {}))
+        write_header(f, voxel_size=voxel_size, up_axis=up_axis, title=title, producer=producer)
+        write_world(f, chunk_size, chunk_origin, chunk_blocks, shapes, compression)
         if edits is not None and len(edits):
-            w["edits"] = np.asarray(edits, np.int64).reshape(-1, 5)
+            f["world"]["edits"] = np.asarray(edits, np.int64).reshape(-1, 5)
         e = f.create_group("entities")
         e["id"] = np.asarray(entity_ids, np.int64)
         e["half_extents"] = np.asarray(half_extents, np.float64).reshape(N, 3)
@@ -63,8 +60,58 @@ def write_trace(path, *, chunk_size: int, chunk_origin, chunk_blocks, entity_ids
         chunks = (max(1, min(F, max(1, 65536 // max(1, N)))), max(1, N), 3) if F and N else None
         for name, arr in zip(FRAME_VECTORS, (start, motion, end)):
             fr.create_dataset(name, data=np.asarray(arr, frame_dtype), chunks=chunks, **(kw if chunks else {}))
-        if active is not None:
-            fr.create_dataset("active", data=np.asarray(active, bool), **(kw if F and N else {}))
+        for name, arr in (("active", active), ("grounded", grounded)):
+            if arr is not None:
+                fr.create_dataset(name, data=np.asarray(arr, bool), **(kw if F and N else {}))
         if frame_half_extents is not None:
             fr.create_dataset("half_extents", data=np.asarray(frame_half_extents, frame_dtype),
                               chunks=chunks, **(kw if chunks else {}))
+
+
+def write_header(f: h5py.File, *, voxel_size: float = 1.0, up_axis: str = "y", title: str = "",
+                 producer: str = ""):
+    """The root attributes of format v1."""
+    f.attrs["format"] = FORMAT_NAME
+    f.attrs["version"] = np.int64(FORMAT_VERSION)
+    f.attrs["voxel_size"] = float(voxel_size)
+    f.attrs["up_axis"] = up_axis
+    if title:
+        f.attrs["title"] = title
+    if producer:
+        f.attrs["producer"] = producer
+
+
+def write_world(f: h5py.File, chunk_size: int, chunk_origin, chunk_blocks, shapes: BlockShapes | None,
+                compression: str | None = "gzip") -> h5py.Group:
+    """``/blocks`` (when ``shapes`` is given) and ``/world`` without edits; returns the world group.
+
+    ``chunk_blocks`` (C, S, S, S) is stored as uint8 when every type fits, else uint16.
+    """
+    blocks = np.asarray(chunk_blocks)
+    if blocks.dtype not in (np.uint8, np.uint16):
+        blocks = blocks.astype(np.uint8 if blocks.size == 0 or blocks.max() < 256 else np.uint16)
+    kw = {"compression": compression, "shuffle": True} if compression and blocks.size else {}
+    if shapes is not None:
+        g = f.create_group("blocks")
+        g["box_start"] = np.asarray(shapes.box_start, np.int64)
+        g["boxes"] = np.asarray(shapes.boxes, np.float64).reshape(-1, 6)
+        g["names"] = np.array(shapes.names, dtype=h5py.string_dtype())
+    w = f.create_group("world")
+    w.attrs["chunk_size"] = np.int64(chunk_size)
+    w["chunk_origin"] = np.asarray(chunk_origin, np.int64).reshape(-1, 3)
+    w.create_dataset("chunk_blocks", data=blocks, **kw)
+    return w
+
+
+def temp_path(path) -> str:
+    """A temporary name beside ``path`` (same folder, so the final rename stays on one file system)."""
+    head, tail = os.path.split(os.fspath(path))
+    return os.path.join(head, f".{tail}.{os.getpid()}.part")
+
+
+def remove_quietly(path):
+    """Remove ``path`` if it exists (clean-up after a failed or interrupted write)."""
+    try:
+        os.remove(path)
+    except OSError:
+        pass
