@@ -9,9 +9,9 @@ from resweep.core.check.kinds import DEFAULT_FAIL_ON, KINDS, SEVERITY
 from resweep.core.check.stream import check_trace
 from resweep.core.errors import TraceFormatError
 from resweep.core.check.rows import warm_up
-from resweep.core.solve.settings import SolverSettings
 from resweep.core.format.reader import open_trace
 
+from resweep.app.cli.solver_args import settings_from
 from resweep.app.cli.exits import EXIT_DIVERGED, EXIT_OK, EXIT_USAGE
 from resweep.app.cli.output import emit_json
 
@@ -66,8 +66,8 @@ def _fmt_vec(v) -> str:
 def print_summary(report, settings, fail_on, out=sys.stdout, shown: int = SHOWN):
     w = out.write
     w(f"{report.path}: {report.frames} frames, {report.entities} entities, {report.entity_frames} entity-frames "
-      f"re-solved ({settings.precision}, tolerance {settings.tolerance:g}, skin {settings.skin:g}, "
-      f"passes {settings.passes})\n")
+      f"re-solved ({settings.describe()}, {settings.precision}, tolerance {settings.tolerance:g}, "
+      f"skin {settings.skin:g})\n")
     w(f"  {'kind':<14}{'severity':<10}{'count':>8}\n")
     for k in KINDS:
         w(f"  {k:<14}{SEVERITY[k]:<10}{report.counts[k]:>8}\n")
@@ -88,8 +88,7 @@ def print_summary(report, settings, fail_on, out=sys.stdout, shown: int = SHOWN)
 
 
 def run(args) -> int:
-    settings = SolverSettings(tolerance=args.tolerance, skin=args.skin, passes=args.passes,
-                              precision=args.precision)
+    settings = settings_from(args)
     fail_on = DEFAULT_FAIL_ON if args.fail_on is None else args.fail_on
     if args.threads is not None:
         import numba

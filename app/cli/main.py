@@ -10,7 +10,9 @@ import importlib
 import os
 import sys
 
+from resweep.app.cli import explain as explain_cmd
 from resweep.app.cli.exits import EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_USAGE
+from resweep.app.cli.solver_args import add_solver_opts as solver_opts
 
 
 class _Parser(argparse.ArgumentParser):
@@ -57,15 +59,6 @@ def build_parser() -> argparse.ArgumentParser:
                 "swept-AABB solver and report where the recorded run diverged.")
     sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser, metavar="COMMAND")
 
-    def solver_opts(sp):
-        sp.add_argument("--tolerance", type=float, default=0.01, metavar="T",
-                        help="voxels; ends closer than this agree (default 0.01)")
-        sp.add_argument("--skin", type=float, default=0.001, metavar="E",
-                        help="voxels kept between a box and a hit face (default 0.001)")
-        sp.add_argument("--passes", type=int, default=3, metavar="N", help="slide passes per frame (default 3)")
-        sp.add_argument("--precision", choices=("float64", "float32"), default="float64",
-                        help="solve precision (default float64)")
-
     c = sub.add_parser("check", help="re-solve traces and report divergences",
                        description="Re-solve every recorded entity-frame and report divergences. Exit status: "
                                    "0 no failing divergence, 1 failing divergence found, 2 usage error or bad trace.")
@@ -87,6 +80,7 @@ def build_parser() -> argparse.ArgumentParser:
     v.add_argument("trace", nargs="?", metavar="TRACE", help="trace to open (default: the bundled demo)")
     v.add_argument("--frame", type=_positive_int, default=0, metavar="N")
     v.add_argument("--entity", type=int, default=None, metavar="ID")
+    solver_opts(v)
 
     s = sub.add_parser("snapshot", help="render the viewer picture off screen to a PNG")
     s.add_argument("trace", metavar="TRACE")
@@ -95,6 +89,7 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--size", type=_size_arg, default=(1280, 720), metavar="WxH")
     s.add_argument("-o", "--output", required=True, metavar="PNG")
     solver_opts(s)
+    explain_cmd.add_parser(sub)
     return p
 
 

@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import sys
 
+from resweep.app.cli.solver_args import settings_from
 from resweep.app.cli.exits import EXIT_OK, EXIT_USAGE
 
 
@@ -15,8 +16,7 @@ def run(args) -> int:
     import os
     from pathlib import Path
 
-    from resweep.core.solve.settings import SolverSettings
-
+    
     from resweep.core.analysis.frames import TraceSession
 
     out = Path(args.output)
@@ -27,8 +27,7 @@ def run(args) -> int:
                else "is not writable")
         sys.stderr.write(f"resweep snapshot: {args.output}: cannot write the picture ({why})\n")
         return EXIT_USAGE
-    settings = SolverSettings(tolerance=args.tolerance, skin=args.skin, passes=args.passes,
-                              precision=args.precision)
+    settings = settings_from(args)
     with TraceSession(args.trace, settings) as session:
         if out.exists() and out.resolve() == Path(session.trace.path).resolve():
             sys.stderr.write(f"resweep snapshot: {args.output}: is the input trace; pick another output\n")

@@ -33,5 +33,9 @@ def run(args) -> int:
         sys.stderr.write(f"resweep view: no display could be opened (the Qt platform plugin failed to "
                          f"start); {hint}\n")
         return EXIT_USAGE
+    from resweep.app.cli.solver_args import settings_from
     from resweep.app.viewer.window import run_window
-    return run_window(args.trace, args.frame, args.entity)
+    from resweep.core.solve.settings import SolverSettings
+    settings = settings_from(args)  # bad values fail here, before a window opens
+    # without solver options the viewer keeps the settings stored from the last session
+    return run_window(args.trace, args.frame, args.entity, None if settings == SolverSettings() else settings)

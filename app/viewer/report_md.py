@@ -64,6 +64,7 @@ class FrameFacts:
     state: str = ""
     vectors: list = field(default_factory=list)
     passes: list = field(default_factory=list)
+    step: str = ""  # step-up outcome when a step height is set: which try was kept, height climbed
 
 
 def frame_facts(session, state, col: int) -> FrameFacts:
@@ -89,6 +90,10 @@ def frame_facts(session, state, col: int) -> FrameFacts:
         ("difference", diff, float(np.linalg.norm(diff))),
         ("half extents", np.asarray(state.half[col], np.float64), None),
     ]
+    if session.settings.step_height > 0:
+        climbed = float(rows.climb[col]) / trace.voxel_size
+        facts.step = (f"raised try kept, climbed {num(climbed, 4)} voxels" if rows.raised[col]
+                      else "plain solve kept (no step up)")
     for k in range(int(rows.npass[col])):
         b = int(rows.block[col, k])
         facts.passes.append(PassFacts(
@@ -102,10 +107,11 @@ def _settings_args(s: SolverSettings) -> list[str]:
     """Command-line options for the settings that differ from the defaults."""
     d = SolverSettings()
     out = []
-    for name in ("tolerance", "skin", "passes", "precision"):
+    for name in ("tolerance", "skin", "passes", "precision", "model", "axis_order", "substep", "iterations",
+                 "step_height"):
         v = getattr(s, name)
         if v != getattr(d, name):
-            out += [f"--{name}", f"{v:g}" if isinstance(v, float) else str(v)]
+            out += [f"--{name.replace('_', '-')}", f"{v:g}" if isinstance(v, float) else str(v)]
     return out
 
 
@@ -146,8 +152,8 @@ def report_markdown(facts: FrameFacts | None, path: str, frame: int, time: float
     lines.append(f"- **Trace:** `{path}`" + (f" ({title})" if title else ""))
     lines.append(f"- **Frame:** {frame} at t = {time:.6f} s")
     s = settings
-    lines.append(f"- **Solver:** tolerance {s.tolerance:g} voxels, skin {s.skin:g} voxels, "
-                 f"{s.passes} passes, {s.precision}")
+    lines.append(f"- **Solver:** {s.describe()}, tolerance {s.tolerance:g} voxels, skin {s.skin:g} voxels, "
+                 f"{s.precision}")
     if facts is None:
         lines.append("- **Entity:** none focused")
     else:
@@ -161,6 +167,8 @@ def report_markdown(facts: FrameFacts | None, path: str, frame: int, time: float
         else:
             lines.append("- **Divergences:** none (recorded and reference ends agree)")
         if facts.active:
+            if facts.step:
+                lines.append(f"- **Step-up:** {facts.step}")
             lines += ["", f"Reference result: {facts.state}. Positions in world units "
                           f"(1 voxel = {facts.voxel_size:g} world units).", "",
                       "| quantity | x | y | z | length |", "|---|---:|---:|---:|---:|"]

@@ -17,7 +17,7 @@ from PyQt6.QtWidgets import (QApplication, QDialog, QDockWidget, QFileDialog, QH
                              QWidget)
 
 from resweep.core.errors import ResweepError
-from resweep.core.solve.settings import SolverSettings
+from resweep.core.solve.settings import SolverSettings, settings_from_dict
 
 from resweep.app.viewer.panels import EntitiesPanel, FramePanel, SettingsPanel
 from resweep.app.viewer.playback import Playback
@@ -194,6 +194,8 @@ class MainWindow(QMainWindow):
         v.addSeparator()
         for d in (self.dock_entities, self.dock_frame, self.dock_settings):
             v.addAction(d.toggleViewAction())
+        sv = m.addMenu("&Solver")
+        A(sv, "&Fit model to this trace…", self.fit_model_dialog, ["Ctrl+M"], "Solver")
         h = m.addMenu("&Help")
         A(h, "Keyboard shortcuts", self.show_shortcuts, ["F1", "?"], "Help")
         A(h, "Cancel background re-solve", self.cancel_background, ["Esc"], "Help")
@@ -449,10 +451,20 @@ class MainWindow(QMainWindow):
             self.recent_menu.addAction("Clear list", lambda: (self.store.setValue("recent", []),
                                                               self._rebuild_recent()))
 
+    def fit_model_dialog(self):
+        """Rank the solver models on the open trace; the dialog applies a chosen one."""
+        if self.session is None:
+            self.status("Open a trace first")
+            return None
+        from resweep.app.viewer.fit_dialog import FitDialog
+        self.fit_dialog = FitDialog(str(self.session.path), self.pb, self)
+        self.fit_dialog.show()
+        return self.fit_dialog
+
     def _stored_settings(self) -> SolverSettings:
         d = self.store.value("solver")
         try:
-            return SolverSettings(float(d["tolerance"]), float(d["skin"]), int(d["passes"]), str(d["precision"]))
+            return settings_from_dict(d)
         except (TypeError, KeyError, ValueError, ResweepError):
             return SolverSettings()
 
@@ -558,14 +570,17 @@ def apply_identity(app: QApplication):
     app.setWindowIcon(draw_icon("logo", size=64))
 
 
-def run_window(trace: str | None, frame: int = 0, entity_id: int | None = None) -> int:
-    """Start the application, open ``trace`` (the demo when None) and run until the window closes."""
+def run_window(trace: str | None, frame: int = 0, entity_id: int | None = None, settings=None) -> int:
+    """Start the application, open ``trace`` (the demo when None) and run until the window closes;
+    ``settings`` (SolverSettings from the command line) replace the stored solver settings."""
     import sys
     app = QApplication.instance() or QApplication(sys.argv[:1])
     app.setOrganizationName(ORG)
     app.setApplicationName(APP)
     apply_identity(app)
     win = MainWindow()
+    if settings is not None:
+        win.pb.set_settings(settings)
     win.show()
     win.open_path(trace if trace is not None else demo_path(), frame, entity_id)
     return app.exec()

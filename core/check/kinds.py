@@ -47,6 +47,14 @@ TABLE: tuple[Kind, ...] = (
     Kind("discontinuity", "info", 6, "jumped between frames",
          "the start of frame f+1 differs from the recorded end of frame f (teleport, correction between "
          "frames)", "gap"),
+    Kind("grounded_mismatch", "warning", 7, "wrong on-ground flag",
+         "the recorded on-ground flag says grounded while no solid supports the box at the recorded end, or "
+         "airborne while it rests on solid (the grounded rule, within the tolerance; error = gap to the floor "
+         "below, when within a voxel)", "gnd"),
+    Kind("step_mismatch", "warning", 8, "stepped differently",
+         "with a step height set: the recorded end rose more than the step height plus the wanted upward "
+         "motion, or exactly one of the reference and the recording stepped up (error = rise over the "
+         "reference's plain solve)", "step"),
 )
 
 #: Kind names in bit order.
@@ -63,6 +71,7 @@ ALL_BITS = (1 << KIND_COUNT) - 1
 # Bit positions as plain ints, for the kernels (numba compiles module-level ints in as constants).
 INVALID, START_OVERLAP, PENETRATION, TUNNELING, SNAG, MISMATCH, DISCONTINUITY = (BY_NAME[n].bit for n in (
     "invalid", "start_overlap", "penetration", "tunneling", "snag", "mismatch", "discontinuity"))
+GROUNDED_MISMATCH, STEP_MISMATCH = (BY_NAME[n].bit for n in ("grounded_mismatch", "step_mismatch"))
 assert all(k.bit == i for i, k in enumerate(TABLE)), "a kind's bit is its position in TABLE"
 
 

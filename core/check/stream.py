@@ -26,11 +26,15 @@ class Divergence:
     reference_end: list
     error: float | None
     passes: list
+    step: dict | None = None
 
     def as_json(self) -> dict:
-        return {"frame": self.frame, "entity": self.entity, "kind": self.kind, "severity": self.severity,
-                "recorded_end": self.recorded_end, "reference_end": self.reference_end, "error": self.error,
-                "passes": self.passes}
+        doc = {"frame": self.frame, "entity": self.entity, "kind": self.kind, "severity": self.severity,
+               "recorded_end": self.recorded_end, "reference_end": self.reference_end, "error": self.error,
+               "passes": self.passes}
+        if self.step is not None:
+            doc["step"] = self.step
+        return doc
 
 
 @dataclass
@@ -82,6 +86,11 @@ def pass_list(rows: RowResults, i: int) -> list:
     return out
 
 
+def step_info(rows: RowResults, i: int, voxel_size: float) -> dict:
+    """Step-up outcome of row ``i``: which try the reference kept and the height climbed (voxels)."""
+    return {"kept": "raised" if rows.raised[i] else "plain", "climbed": float(rows.climb[i]) / voxel_size}
+
+
 def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit: int = 1000,
                 progress=None, on_block=None, should_stop=None, rows_per_block: int = 1 << 17) -> TraceReport:
     """Re-solve every active entity-frame of ``trace`` and classify the recorded run.
@@ -121,12 +130,14 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
             nb_gather.gather_rows(blk.start, blk.motion, blk.end, blk.active, prev_end, prev_active, has_prev,
                                  fr, col, tol, start, motion, end, gap, disc)
             half = blk.half[0][col] if blk.half.strides[0] == 0 else blk.half[fr, col]
-            rows = solve_rows(world, start, motion, end, half, settings, out=buf.rows_out(M))
+            ground = None if blk.grounded is None else blk.grounded[fr, col]
+            rows = solve_rows(world, start, motion, end, half, settings, out=buf.rows_out(M), up=trace.up_axis,
+                              grounded=ground)
             rows.flags |= disc.astype(np.int32) << DISCONTINUITY
             rows.error[disc, DISCONTINUITY] = gap[disc]
             report.entity_frames += M
             _count(report, rows.flags)
-            _collect(report, trace, rows, blk.end, fr, col, blk.f0, limit)
+            _collect(report, trace, rows, blk.end, fr, col, blk.f0, limit, settings.step_height > 0)
             if on_block is not None:
                 on_block(BlockResult(fr + blk.f0, col, rows))
         prev_end = np.asarray(blk.end[-1], np.float64)
@@ -171,7 +182,8 @@ def _count(report: TraceReport, flags: np.ndarray):
         report.counts[kind] += int(np.count_nonzero(nz & kind_mask(kind)))
 
 
-def _collect(report: TraceReport, trace: Trace, rows: RowResults, block_end, fr, cols, f0: int, limit: int):
+def _collect(report: TraceReport, trace: Trace, rows: RowResults, block_end, fr, cols, f0: int, limit: int,
+             stepping: bool = False):
     """Append the divergences of solved rows (frames ``f0 + fr``, columns ``cols``) up to ``limit``;
     recorded ends are read from the block (file dtype) only for the rows kept."""
     if len(report.divergences) >= limit:
@@ -184,5 +196,6 @@ def _collect(report: TraceReport, trace: Trace, rows: RowResults, block_end, fr,
             report.divergences.append(Divergence(
                 int(f0 + fr[i]), int(trace.ids[cols[i]]), kind, SEVERITY[kind],
                 _finite_list(block_end[fr[i], cols[i]]), _finite_list(rows.ref_end[i]),
-                err if np.isfinite(err) else None, pass_list(rows, i)))
+                err if np.isfinite(err) else None, pass_list(rows, i),
+                step_info(rows, i, trace.voxel_size) if stepping else None))
 

@@ -63,6 +63,8 @@ TABLE: tuple[DatasetSpec, ...] = (
     DatasetSpec("/frames/active", ("bool",), ("F", "N"), False, "bool", "row recorded (default all true)"),
     DatasetSpec("/frames/half_extents", ("float",), ("F", "N", 3), False, "float32|float64",
                 "per-frame half extents (crouching)"),
+    DatasetSpec("/frames/grounded", ("bool",), ("F", "N"), False, "bool",
+                "the engine's on-ground flag after the frame"),
 )
 BY_PATH: dict[str, DatasetSpec] = {d.path: d for d in TABLE}
 #: The per-frame datasets holding positions, in the order readers hand them out.

@@ -30,6 +30,8 @@ class FrameBlock:
         start, motion, end: float (n, N, 3) in the file's frame dtype, world units.
         active: bool (n, N).
         half: float (n, N, 3) half extents in effect per row (per-frame override or entity table).
+        grounded: int8 (n, N) the engine's on-ground flag after each frame (1, 0), or None when
+            the trace does not record it.
     """
 
     f0: int
@@ -39,6 +41,7 @@ class FrameBlock:
     end: np.ndarray
     active: np.ndarray
     half: np.ndarray
+    grounded: np.ndarray | None = None
 
 
 class Trace:
@@ -203,6 +206,21 @@ class Trace:
         self.names = names
         self.entity_count = N
 
+    def _flag_dataset(self, path: str, F: int, N: int):
+        """An optional bool (F, N) frame dataset (one-byte integers accepted), checked, or None."""
+        f = self._f
+        ds = f.dataset(path, required=False, whole=False)
+        if ds is not None:
+            if ds.dtype != np.dtype("bool") and not (ds.dtype.kind in "iu" and ds.dtype.itemsize == 1):
+                raise f.fail(ds.name, f"dtype must be bool, found {ds.dtype}")
+            _check(f, ds, spec(path), {"F": F, "N": N}, " = (frames, entities)")
+        return ds
+
+    @property
+    def has_grounded(self) -> bool:
+        """Whether the trace records the engine's on-ground flag (``/frames/grounded``)."""
+        return self._ds["grounded"] is not None
+
     def _load_frames(self):
         f = self._f
         f.group("/frames")
@@ -217,12 +235,8 @@ class Trace:
             _check(f, ds, spec(f"/frames/{name}"), {"F": F, "N": N}, " = (frames, entities, 3)")
             dtype = np.promote_types(dtype, ds.dtype) if dtype is not None else ds.dtype
             self._ds[name] = ds
-        act = f.dataset("/frames/active", required=False, whole=False)
-        if act is not None:
-            if act.dtype != np.dtype("bool") and not (act.dtype.kind in "iu" and act.dtype.itemsize == 1):
-                raise f.fail(act.name, f"dtype must be bool, found {act.dtype}")
-            _check(f, act, spec("/frames/active"), {"F": F, "N": N}, " = (frames, entities)")
-        self._ds["active"] = act
+        self._ds["active"] = self._flag_dataset("/frames/active", F, N)
+        self._ds["grounded"] = self._flag_dataset("/frames/grounded", F, N)
         hov = f.dataset("/frames/half_extents", required=False, whole=False)
         if hov is not None:
             _check(f, hov, spec("/frames/half_extents"), {"F": F, "N": N}, " = (frames, entities, 3)")
@@ -260,7 +274,9 @@ class Trace:
             half = rd(hov, np.s_[f0:f1])
         else:
             half = np.broadcast_to(self.half_extents[None], (n, self.entity_count, 3))
-        return FrameBlock(f0, f1, start, motion, end, active, half)
+        gd = self._ds["grounded"]
+        grounded = (rd(gd, np.s_[f0:f1]) != 0).astype(np.int8) if gd is not None else None
+        return FrameBlock(f0, f1, start, motion, end, active, half, grounded)
 
     def block_frames(self, rows: int = 1 << 17) -> int:
         """Frames per streamed block so that one block holds about ``rows`` entity-frames.

@@ -10,7 +10,7 @@ from resweep.core.format.reader import FORMAT_NAME, FORMAT_VERSION
 
 
 def write_trace(path, *, chunk_size: int, chunk_origin, chunk_blocks, entity_ids, half_extents,
-                time, start, motion, end, active=None, frame_half_extents=None, shapes: BlockShapes | None = None,
+                time, start, motion, end, active=None, frame_half_extents=None, grounded=None, shapes: BlockShapes | None = None,
                 edits=None, entity_names=None, voxel_size: float = 1.0, up_axis: str = "y",
                 title: str = "", producer: str = "resweep", frame_dtype=None, compression: str | None = "gzip"):
     """Write a trace file in format v1.
@@ -21,6 +21,7 @@ def write_trace(path, *, chunk_size: int, chunk_origin, chunk_blocks, entity_ids
         entity_ids: int (N,); half_extents: float (N, 3) world units.
         time: float (F,) seconds; start, motion, end: float (F, N, 3) world units.
         active: bool (F, N) or None; frame_half_extents: float (F, N, 3) or None.
+        grounded: bool (F, N) the engine's on-ground flag after each frame, or None.
         shapes: block shape table or None for the implicit unit cubes.
         edits: int (E, 5) rows [frame, x, y, z, type] or None.
         frame_dtype: dtype of the frame datasets (default: float64 unless ``start`` is float32).
@@ -65,6 +66,8 @@ def write_trace(path, *, chunk_size: int, chunk_origin, chunk_blocks, entity_ids
             fr.create_dataset(name, data=np.asarray(arr, frame_dtype), chunks=chunks, **(kw if chunks else {}))
         if active is not None:
             fr.create_dataset("active", data=np.asarray(active, bool), **(kw if F and N else {}))
+        if grounded is not None:
+            fr.create_dataset("grounded", data=np.asarray(grounded, bool), **(kw if F and N else {}))
         if frame_half_extents is not None:
             fr.create_dataset("half_extents", data=np.asarray(frame_half_extents, frame_dtype),
                               chunks=chunks, **(kw if chunks else {}))
