@@ -68,14 +68,16 @@ def print_summary(report, settings, fail_on, out=sys.stdout, shown: int = SHOWN)
     w(f"{report.path}: {report.frames} frames, {report.entities} entities, {report.entity_frames} entity-frames "
       f"re-solved ({settings.describe()}, {settings.precision}, tolerance {settings.tolerance:g}, "
       f"skin {settings.skin:g})\n")
-    w(f"  {'kind':<14}{'severity':<10}{'count':>8}\n")
+    kw = max(14, max(len(k) for k in KINDS) + 1)
+    w(f"  {'kind':<{kw}}{'severity':<10}{'count':>8}\n")
     for k in KINDS:
-        w(f"  {k:<14}{SEVERITY[k]:<10}{report.counts[k]:>8}\n")
+        w(f"  {k:<{kw}}{SEVERITY[k]:<10}{report.counts[k]:>8}\n")
     if report.divergences:
-        w(f"  first divergences:\n  {'frame':>7} {'entity':>8}  {'kind':<14}{'error':>10}  recorded end -> reference end\n")
+        w(f"  first divergences:\n  {'frame':>7} {'entity':>8}  {'kind':<{kw}}{'error':>10}  recorded end -> "
+          "reference end\n")
         for d in report.divergences[:shown]:
             err = "-" if d.error is None else f"{d.error:.4f}"
-            w(f"  {d.frame:>7} {d.entity:>8}  {d.kind:<14}{err:>10}  {_fmt_vec(d.recorded_end)} -> "
+            w(f"  {d.frame:>7} {d.entity:>8}  {d.kind:<{kw}}{err:>10}  {_fmt_vec(d.recorded_end)} -> "
               f"{_fmt_vec(d.reference_end)}\n")
         total = sum(report.counts.values())
         if total > shown:

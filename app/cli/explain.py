@@ -62,6 +62,7 @@ def print_explanation(ex, out=sys.stdout) -> None:
 
 
 def run(args) -> int:
+    from resweep.app.cli.check import compile_notice
     from resweep.app.cli.output import emit_json
     from resweep.core.analysis.explain import explain_trace
     from resweep.core.errors import TraceFormatError
@@ -72,6 +73,7 @@ def run(args) -> int:
     for path in args.traces:
         try:
             with open_trace(path) as trace:
+                compile_notice(args.precision, quiet=args.quiet)
                 ex = explain_trace(trace, args.tolerance, args.entity, args.frames, args.precision)
         except TraceFormatError as exc:
             sys.stderr.write(f"resweep explain: {exc.one_line()}\n")

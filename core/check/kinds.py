@@ -49,8 +49,8 @@ TABLE: tuple[Kind, ...] = (
          "frames)", "gap"),
     Kind("grounded_mismatch", "warning", 7, "wrong on-ground flag",
          "the recorded on-ground flag says grounded while no solid supports the box at the recorded end, or "
-         "airborne while it rests on solid (the grounded rule, within the tolerance; error = gap to the floor "
-         "below, when within a voxel)", "gnd"),
+         "airborne while it rests on solid (the grounded rule; a grounded claim gets the tolerance on top; error "
+         "= gap to the floor below, when within a voxel)", "gnd"),
     Kind("step_mismatch", "warning", 8, "stepped differently",
          "with a step height set: the recorded end rose more than the step height plus the wanted upward "
          "motion, or exactly one of the reference and the recording stepped up (error = rise over the "

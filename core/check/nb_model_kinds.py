@@ -29,10 +29,12 @@ def model_kinds(s, m, e, h, world, skin, tol, mp, flag, raised, plain_up):
     g_err = fl(vs, np.nan)
     s_err = fl(vs, np.nan)
     if flag >= 0:
-        # the grounded rule, read with the tolerance like every comparison with recorded data
+        # the grounded rule, read with the tolerance in the recording's favour: "grounded" is wrong
+        # only when the floor is more than 2 skin + tol below (or none within a voxel), "airborne"
+        # only when a floor lies within 2 skin below (or up to tol inside the box)
         gap = support_gap(e, h, world, up, tol)
-        rests = gap <= 2 * skin + tol
-        if (flag == 1) != rests:
+        wrong = not (gap <= 2 * skin + tol) if flag == 1 else gap <= 2 * skin
+        if wrong:
             bits |= 1 << GROUNDED_MISMATCH
             if np.isfinite(gap):
                 g_err = gap

@@ -53,7 +53,7 @@ def _world():
 def _axis_actors():
     """(id, name, start, controller(frame) -> (vx, vz) or ("jump", vy, vx, vz))."""
     return [
-        (201, "stepper", (2.5, 2.901, 5.5), lambda f: (2.5, 0.0)),
+        (201, "stepper", (2.5, 2.901, 5.5), lambda f: (4.0, 0.0)),
         (202, "diagonal", (17.5, 2.901, 1.5), lambda f: (2.0, 2.0) if f % 160 < 80 else (-2.0, 2.2)),
         (203, "ducker", (7.5, 2.901, 17.0), lambda f: (2.0, 0.0)),
         (204, "jumper", (4.5, 2.901, 28.0), lambda f: ("jump", 8.0, 1.5, -1.0) if f % 45 == 5 else (1.5, -1.0)),

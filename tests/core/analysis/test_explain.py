@@ -84,3 +84,13 @@ def test_json_shape(traces):
             assert m["passes"] is None and m["axis_order"] is None and m["step_height"] is None
     agrees = [m["agree"] for m in doc["models"]]
     assert agrees == sorted(agrees, reverse=True)
+
+
+def test_screening_on_a_sample_keeps_the_pick(traces):
+    # With fewer screened rows than contact rows, the leaders are solved on every row.
+    with open_trace(traces["pushout"]) as tr:
+        full = explain_trace(tr)
+        ex = explain_trace(tr, sample=150, leaders=2)
+    assert ex.screened and not full.screened
+    assert ex.best == full.best and ex.models[0].agree == full.models[0].agree
+    assert ex.models[0].rows == full.models[0].rows == full.rows_used
