@@ -82,6 +82,25 @@ def test_step_up_and_step_up_under_a_low_ceiling(model, ceiling):
         assert r.raised[0] and r.climb[0] == 0.625
 
 
+@pytest.mark.parametrize("ceiling, recorded, flagged", [
+    (True, (3.0, 2.015625), True),            # stepped through the ceiling: only the recording stepped
+    (False, (2.75 - SKIN, 1.5 + SKIN), True),  # did not step where the reference did
+    (False, (3.0, 2.015625), False),           # stepped like the reference
+])
+def test_step_mismatch_hand_worked(ceiling, recorded, flagged):
+    # Ends worked in test_step_up_and_step_up_under_a_low_ceiling; the recording counts as stepped
+    # when it ends higher than the reference's plain solve (y = 1.5 + 1/64) by more than the tolerance.
+    g, shapes = _step_world(ceiling)
+    w = world_from_grid(g, shapes=shapes)
+    s = np.array([[2.5, 1.5 + SKIN, 2.5]])
+    e = np.array([[recorded[0], recorded[1], 2.5]])
+    st = SolverSettings(model="axis", skin=SKIN, step_height=0.625)
+    r = solve_rows(w, s, np.array([[0.5, 0, 0]]), e, np.full((1, 3), [0.25, 0.5, 0.25]), st)
+    assert bool(r.flags[0] & (1 << BY_NAME["step_mismatch"].bit)) == flagged
+    if flagged:
+        assert r.error[0, BY_NAME["step_mismatch"].bit] == pytest.approx(recorded[1] - (1.5 + SKIN))
+
+
 def test_no_step_up_when_not_grounded():
     # The same box 1/8 above the floor (gap 0.125 > 2 skin) is airborne: no raised try.
     g, shapes = _step_world(False)
