@@ -6,11 +6,11 @@ import numpy as np
 
 from resweep.core.check.kinds import GROUNDED_MISMATCH, STEP_MISMATCH
 from resweep.core.jit.nb_float import fl
-from resweep.core.jit.nb_jit import kernel
+from resweep.core.jit.nb_jit import hot
 from resweep.core.solve.nb_ground import grounded, support_gap
 
 
-@kernel(inline="always")
+@hot
 def model_kinds(s, m, e, h, world, skin, tol, mp, flag, raised, plain_up):
     """Flag bits and errors of the model kinds for one valid row.
 
