@@ -10,9 +10,9 @@ from resweep.core.check.kinds import DEFAULT_FAIL_ON, KINDS, SEVERITY
 from resweep.core.check.stream import check_trace
 from resweep.core.errors import TraceFormatError
 from resweep.core.check.rows import warm_up
-from resweep.core.solve.settings import SolverSettings
 from resweep.core.format.reader import open_trace
 
+from resweep.app.cli.solver_args import settings_from
 from resweep.app.cli.exits import EXIT_DIVERGED, EXIT_OK, EXIT_USAGE
 from resweep.app.cli.output import Stdout, emit_json, output_problem
 
@@ -70,19 +70,21 @@ def print_summary(report, settings, fail_on, out=sys.stdout, shown: int = SHOWN,
     ``report.divergences``, at most ``limit``), so the "more" line can say where the rest is."""
     w = out.write
     w(f"{report.path}: {report.frames} frames, {report.entities} entities, {report.entity_frames} entity-frames "
-      f"re-solved ({settings.precision}, tolerance {settings.tolerance:g}, skin {settings.skin:g}, "
-      f"passes {settings.passes})\n")
-    w(f"  {'kind':<14}{'severity':<10}{'count':>8}\n")
+      f"re-solved ({settings.describe()}, {settings.precision}, tolerance {settings.tolerance:g}, "
+      f"skin {settings.skin:g})\n")
+    kw = max(14, max(len(k) for k in KINDS) + 1)
+    w(f"  {'kind':<{kw}}{'severity':<10}{'count':>8}\n")
     for k in KINDS:
-        w(f"  {k:<14}{SEVERITY[k]:<10}{report.counts[k]:>8}\n")
+        w(f"  {k:<{kw}}{SEVERITY[k]:<10}{report.counts[k]:>8}\n")
     if report.divergences:
-        w(f"  first divergences:\n  {'frame':>7} {'entity':>8}  {'kind':<14}{'error':>10}  recorded end -> reference end\n")
+        w(f"  first divergences:\n  {'frame':>7} {'entity':>8}  {'kind':<{kw}}{'error':>10}  recorded end -> "
+          "reference end\n")
         for d in report.divergences[:shown]:
             if d.reason is not None:  # an invalid row has no error or reference: say what is wrong
                 w(f"  {d.frame:>7} {d.entity:>8}  {d.kind:<14}{'-':>10}  {d.reason}\n")
                 continue
             err = "-" if d.error is None else f"{d.error:.4f}"
-            w(f"  {d.frame:>7} {d.entity:>8}  {d.kind:<14}{err:>10}  {_fmt_vec(d.recorded_end)} -> "
+            w(f"  {d.frame:>7} {d.entity:>8}  {d.kind:<{kw}}{err:>10}  {_fmt_vec(d.recorded_end)} -> "
               f"{_fmt_vec(d.reference_end)}\n")
         w(_more_line(report, shown, json_path, limit))
     failing = {k: report.counts[k] for k in fail_on if report.counts[k]}
@@ -141,8 +143,7 @@ def run(args) -> int:
     from resweep.app.cli import farm
     if farm.wanted(args):  # folders, globs or farm options: many traces on a pool or a cluster
         return farm.run(args)
-    settings = SolverSettings(tolerance=args.tolerance, skin=args.skin, passes=args.passes,
-                              precision=args.precision)
+    settings = settings_from(args)
     fail_on = DEFAULT_FAIL_ON if args.fail_on is None else args.fail_on
     json_to_stdout = args.json == "-"
     if args.json and not json_to_stdout:

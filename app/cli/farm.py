@@ -18,8 +18,8 @@ from resweep.core.analysis.farm_report import summary
 from resweep.core.analysis.farm_run import run_farm
 from resweep.core.analysis.farm_task import FarmOptions
 from resweep.core.check.kinds import DEFAULT_FAIL_ON, KINDS, SEVERITY
-from resweep.core.solve.settings import SolverSettings
 
+from resweep.app.cli.solver_args import settings_from
 from resweep.app.cli.exits import EXIT_DIVERGED, EXIT_INTERRUPTED, EXIT_OK, EXIT_USAGE
 from resweep.app.cli.output import emit_json
 
@@ -37,7 +37,7 @@ def wanted(args) -> bool:
 
 
 def run(args) -> int:
-    settings = SolverSettings(tolerance=args.tolerance, skin=args.skin, passes=args.passes, precision=args.precision)
+    settings = settings_from(args)
     fail_on = DEFAULT_FAIL_ON if args.fail_on is None else args.fail_on
     workers = _workers(args)
     if workers is None:

@@ -10,8 +10,10 @@ import importlib
 import os
 import sys
 
+from resweep.app.cli import explain as explain_cmd
 from resweep.app.cli.exits import EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_USAGE
 from resweep.app.cli.output import silence_stdout
+from resweep.app.cli.solver_args import add_solver_opts as solver_opts
 
 
 class _Parser(argparse.ArgumentParser):
@@ -91,29 +93,9 @@ def farm_opts(c):
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from resweep.core.solve.settings import PRECISIONS, SolverSettings
     p = _Parser(prog="resweep", description="Re-solve recorded voxel collision traces with a reference "
                 "swept-AABB solver and report where the recorded run diverged.")
     sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser, metavar="COMMAND")
-
-    def solver_opts(sp, remembered=False):
-        """The solver options; with ``remembered`` (the viewer) an option not given is None and the
-        viewer's remembered setting applies."""
-        d = SolverSettings()
-
-        def dflt(name):
-            return None if remembered else getattr(d, name)
-
-        def said(name):
-            return "the viewer's last setting" if remembered else f"{getattr(d, name)}"
-        sp.add_argument("--tolerance", type=float, default=dflt("tolerance"), metavar="T",
-                        help=f"voxels; ends closer than this agree (default {said('tolerance')})")
-        sp.add_argument("--skin", type=float, default=dflt("skin"), metavar="E",
-                        help=f"voxels kept between a box and a hit face (default {said('skin')})")
-        sp.add_argument("--passes", type=int, default=dflt("passes"), metavar="N",
-                        help=f"slide passes per frame (default {said('passes')})")
-        sp.add_argument("--precision", choices=PRECISIONS, default=dflt("precision"),
-                        help=f"solve precision (default {said('precision')})")
 
     c = sub.add_parser("check", help="re-solve traces and report divergences",
                        description="Re-solve every recorded entity-frame and report divergences. Exit status: "
@@ -174,6 +156,8 @@ def build_parser() -> argparse.ArgumentParser:
     ex = sub.add_parser("export-lines", help="write a trace as a JSON Lines log (the import format)")
     ex.add_argument("trace", metavar="TRACE")
     ex.add_argument("-o", "--output", required=True, metavar="LOG|-")
+
+    explain_cmd.add_parser(sub)
     return p
 
 

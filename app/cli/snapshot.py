@@ -5,6 +5,7 @@ import os
 import sys
 from pathlib import Path
 
+from resweep.app.cli.solver_args import settings_from
 from resweep.app.cli.exits import EXIT_OK, EXIT_USAGE
 from resweep.app.cli.output import output_problem
 
@@ -23,14 +24,12 @@ def run(args) -> int:
     path: one line on stderr, status 2, before anything is rendered. Pictures are written atomically.
     """
     from resweep.core.analysis.frames import TraceSession
-    from resweep.core.solve.settings import SolverSettings
 
     problem = _output_problem(args)
     if problem:
         sys.stderr.write(f"resweep snapshot: {problem}\n")
         return EXIT_USAGE
-    settings = SolverSettings(tolerance=args.tolerance, skin=args.skin, passes=args.passes,
-                              precision=args.precision)
+    settings = settings_from(args)
     first, last = args.frames if args.frames is not None else (args.frame, args.frame)
     with TraceSession(args.trace, settings) as session:
         from resweep.app.scene.picture import PictureMaker, pick_column, save_picture

@@ -5,7 +5,7 @@ import sys
 
 from resweep.app.cli.exits import EXIT_USAGE
 
-SOLVER_OPTIONS = ("tolerance", "skin", "passes", "precision")
+from resweep.app.cli.solver_args import SOLVER_OPTIONS
 
 
 def run(args) -> int:
@@ -29,6 +29,8 @@ def run(args) -> int:
         sys.stderr.write(f"resweep view: {path}: {what}\n")
         return EXIT_USAGE
     overrides = {k: getattr(args, k) for k in SOLVER_OPTIONS if getattr(args, k) is not None}
+    if overrides.get("axis_order"):
+        overrides["axis_order"] = overrides["axis_order"].lower()
     _validate(path, args.frame, args.entity, overrides)
     hint = "use 'resweep snapshot TRACE --frame N -o picture.png' to render without one"
     if sys.platform.startswith("linux") and not (os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY")):

@@ -25,7 +25,7 @@ DIM_RGB = (160, 166, 178)
 
 def settings_line(settings) -> str:
     """The reference solver settings a picture was made with, in words."""
-    return (f"reference: sweep and slide, {settings.passes} passes, skin {settings.skin:g}, "
+    return (f"reference: {settings.describe()}, skin {settings.skin:g}, "
             f"tolerance {settings.tolerance:g} voxels, {settings.precision}")
 
 

@@ -17,7 +17,7 @@ from PyQt6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QDoubleSpi
 
 from resweep.core.check.kinds import KINDS, SEVERITY, SEVERITY_RANK, kinds_of, short, worst_rank
 from resweep.core.errors import SettingsError
-from resweep.core.solve.settings import PRECISIONS, SolverSettings
+from resweep.core.solve.settings import MODELS, PRECISIONS, STEPPING_MODELS, SolverSettings
 
 from resweep.app.viewer.playback import Playback
 from resweep.app.viewer.report_md import INPUT_ROWS, FrameFacts, cells, num
@@ -220,6 +220,8 @@ def facts_lines(f: FrameFacts) -> list[str]:
             out.append(f"{'invalid':<{LABEL_W}}{f.invalid}")
         else:
             out.append(f"{'error':<{LABEL_W}}{num(f.errors[k]):>{w}}  {k}")
+    if f.step:
+        out.append(f"{'step-up':<{LABEL_W}}{f.step}")
     if f.passes:
         out += ["", "pass toi        normal    hit voxel   block        tested",
                 "     (toi: time of impact, fraction of the pass's motion)"]
@@ -248,7 +250,8 @@ def facts_html(f: FrameFacts | None, note: str = "") -> str:
 
 
 class SettingsPanel(QWidget):
-    """Tolerance, skin, passes and precision of the reference solver; every change applies at once."""
+    """Model, tolerance, skin, passes, the models' own parameters and precision of the reference
+    solver; every change applies at once (parameters a model does not use are disabled)."""
 
     def __init__(self, playback: Playback, parent=None):
         super().__init__(parent)
@@ -262,7 +265,18 @@ class SettingsPanel(QWidget):
         self.precision = QComboBox(self)
         self.precision.addItems(PRECISIONS)
         self.precision.setToolTip("Arithmetic of the reference solve")
-        for w in (self.tolerance, self.skin, self.passes):
+        self.model = QComboBox(self)
+        self.model.addItems(list(MODELS))
+        self.model.setToolTip("Reference model: sweep and slide, per-axis clipping, or move then push out")
+        self.axis_order = QComboBox(self)
+        self.axis_order.addItems(["up first", "xyz", "xzy", "yxz", "yzx", "zxy", "zyx"])
+        self.axis_order.setToolTip("Axis model: order in which the axes are clipped")
+        self.substep = self._voxels(1000.0, 0.25, "Push-out model: substep length, 0 = one move (voxels)")
+        self.iterations = QSpinBox(self)
+        self.iterations.setRange(1, 32)
+        self.iterations.setToolTip("Push-out model: push-out rounds after each (sub)step")
+        self.step_height = self._voxels(4.0, 0.1, "Slide and axis models: step-up height, 0 = off (voxels)")
+        for w in (self.tolerance, self.skin, self.passes, self.substep, self.iterations, self.step_height):
             w.setKeyboardTracking(False)  # apply on Enter / arrows, not on every keystroke
         self.defaults = QPushButton("Defaults", self)
         self.message = QLabel("", self)
@@ -270,9 +284,14 @@ class SettingsPanel(QWidget):
         self.message.setObjectName("dim")
         form = QFormLayout(self)
         form.setContentsMargins(6, 6, 6, 6)
+        form.addRow("model", self.model)
         form.addRow("tolerance", self.tolerance)
         form.addRow("skin", self.skin)
         form.addRow("passes", self.passes)
+        form.addRow("axis order", self.axis_order)
+        form.addRow("substep", self.substep)
+        form.addRow("iterations", self.iterations)
+        form.addRow("step height", self.step_height)
         form.addRow("precision", self.precision)
         form.addRow("", self.defaults)
         form.addRow(self.message)
@@ -280,6 +299,10 @@ class SettingsPanel(QWidget):
         self.skin.valueChanged.connect(self._changed)
         self.passes.valueChanged.connect(self._changed)
         self.precision.currentIndexChanged.connect(self._changed)
+        for w in (self.substep, self.iterations, self.step_height):
+            w.valueChanged.connect(self._changed)
+        self.model.currentIndexChanged.connect(self._changed)
+        self.axis_order.currentIndexChanged.connect(self._changed)
         self.defaults.clicked.connect(lambda: self.pb.set_settings(SolverSettings()))
         playback.subscribe(self._on_playback)
         self._sync()
@@ -297,8 +320,13 @@ class SettingsPanel(QWidget):
         if self._syncing:
             return
         try:
+            model = self.model.currentText()
+            order = self.axis_order.currentText()
             self.pb.update_settings(tolerance=round(self.tolerance.value(), 6), skin=round(self.skin.value(), 6),
-                                    passes=int(self.passes.value()), precision=self.precision.currentText())
+                                    passes=int(self.passes.value()), precision=self.precision.currentText(),
+                                    model=model, axis_order=None if order == "up first" else order,
+                                    substep=round(self.substep.value(), 6), iterations=int(self.iterations.value()),
+                                    step_height=round(self.step_height.value(), 6) if model in STEPPING_MODELS else 0.0)
         except SettingsError as exc:
             self.message.setText(str(exc))
             return
@@ -315,5 +343,15 @@ class SettingsPanel(QWidget):
         self.skin.setValue(s.skin)
         self.passes.setValue(s.passes)
         self.precision.setCurrentText(s.precision)
+        self.model.setCurrentText(s.model)
+        self.axis_order.setCurrentText(s.axis_order or "up first")
+        self.substep.setValue(s.substep)
+        self.iterations.setValue(s.iterations)
+        self.step_height.setValue(s.step_height)
+        self.passes.setEnabled(s.model == "slide")
+        self.axis_order.setEnabled(s.model == "axis")
+        self.substep.setEnabled(s.model == "pushout")
+        self.iterations.setEnabled(s.model == "pushout")
+        self.step_height.setEnabled(s.model in STEPPING_MODELS)
         self._syncing = False
 

@@ -79,6 +79,7 @@ class FrameFacts:
     invalid: str = ""
     vectors: list = field(default_factory=list)
     passes: list = field(default_factory=list)
+    step: str = ""  # step-up outcome when a step height is set: which try was kept, height climbed
 
 
 def frame_facts(session, state, col: int) -> FrameFacts:
@@ -107,6 +108,10 @@ def frame_facts(session, state, col: int) -> FrameFacts:
         ("difference", diff, float(np.linalg.norm(diff))),
         ("half extents", np.asarray(state.half[col], np.float64), None),
     ]
+    if session.settings.step_height > 0:
+        climbed = float(rows.climb[col]) / trace.voxel_size
+        facts.step = (f"raised try kept, climbed {num(climbed, 4)} voxels" if rows.raised[col]
+                      else "plain solve kept (no step up)")
     for k in range(int(rows.npass[col])):
         b = int(rows.block[col, k])
         facts.passes.append(PassFacts(
@@ -121,10 +126,11 @@ def _settings_args(s: SolverSettings, every: bool = False) -> list[str]:
     for ``view``, whose defaults are the viewer's remembered settings)."""
     d = SolverSettings()
     out = []
-    for name in ("tolerance", "skin", "passes", "precision"):
+    for name in ("tolerance", "skin", "passes", "precision", "model", "axis_order", "substep", "iterations",
+                 "step_height"):
         v = getattr(s, name)
-        if every or v != getattr(d, name):
-            out += [f"--{name}", repr(float(v)) if isinstance(v, float) else str(v)]
+        if v is not None and (every or v != getattr(d, name)):
+            out += [f"--{name.replace('_', '-')}", repr(float(v)) if isinstance(v, float) else str(v)]
     return out
 
 
@@ -166,8 +172,8 @@ def report_markdown(facts: FrameFacts | None, path: str, frame: int, time: float
     lines.append(f"- **Trace:** `{path}`" + (f" ({title})" if title else ""))
     lines.append(f"- **Frame:** {frame} at t = {time:.6f} s")
     s = settings
-    lines.append(f"- **Solver:** tolerance {s.tolerance:g} voxels, skin {s.skin:g} voxels, "
-                 f"{s.passes} passes, {s.precision}")
+    lines.append(f"- **Solver:** {s.describe()}, tolerance {s.tolerance:g} voxels, skin {s.skin:g} voxels, "
+                 f"{s.precision}")
     if facts is None:
         lines.append("- **Entity:** none focused")
     else:
@@ -183,6 +189,8 @@ def report_markdown(facts: FrameFacts | None, path: str, frame: int, time: float
         else:
             lines.append("- **Divergences:** none (recorded and reference ends agree)")
         if facts.active:
+            if facts.step:
+                lines.append(f"- **Step-up:** {facts.step}")
             lines += ["", f"Reference result: {facts.state}. Positions in world units "
                           f"(1 voxel = {facts.voxel_size:g} world units).", "",
                       "| quantity | x | y | z | length |", "|---|---:|---:|---:|---:|"]

@@ -18,7 +18,7 @@ from PyQt6.QtWidgets import (QApplication, QDialog, QDockWidget, QFileDialog, QH
 
 from resweep.core.analysis.describe import ended_early_line
 from resweep.core.errors import ResweepError
-from resweep.core.solve.settings import SolverSettings
+from resweep.core.solve.settings import SolverSettings, settings_from_dict
 
 from resweep.app.viewer.panels import EntitiesPanel, FramePanel, SettingsPanel
 from resweep.app.viewer.playback import Playback
@@ -206,6 +206,8 @@ class MainWindow(QMainWindow):
         v.addSeparator()
         for d in (self.dock_entities, self.dock_frame, self.dock_settings):
             v.addAction(d.toggleViewAction())
+        sv = m.addMenu("&Solver")
+        A(sv, "&Fit model to this trace…", self.fit_model_dialog, ["Ctrl+M"], "Solver")
         h = m.addMenu("&Help")
         A(h, "Keyboard shortcuts", self.show_shortcuts, ["F1", "?"], "Help")
         A(h, "Cancel background re-solve", self.cancel_background, ["Esc"], "Help")
@@ -475,10 +477,20 @@ class MainWindow(QMainWindow):
             self.recent_menu.addAction("Clear list", lambda: (self.store.setValue("recent", []),
                                                               self._rebuild_recent()))
 
+    def fit_model_dialog(self):
+        """Rank the solver models on the open trace; the dialog applies a chosen one."""
+        if self.session is None:
+            self.status("Open a trace first")
+            return None
+        from resweep.app.viewer.fit_dialog import FitDialog
+        self.fit_dialog = FitDialog(str(self.session.path), self.pb, self)
+        self.fit_dialog.show()
+        return self.fit_dialog
+
     def _stored_settings(self) -> SolverSettings:
         d = self.store.value("solver")
         try:
-            return SolverSettings(float(d["tolerance"]), float(d["skin"]), int(d["passes"]), str(d["precision"]))
+            return settings_from_dict(d)
         except (TypeError, KeyError, ValueError, ResweepError):
             return SolverSettings()
 

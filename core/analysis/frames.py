@@ -141,9 +141,10 @@ class TraceSession:
         cols = np.flatnonzero(active)
         if len(cols):
             got = solve_rows(self.world, blk.start[i][cols], blk.motion[i][cols], blk.end[i][cols],
-                             blk.half[i][cols], self.settings)
+                             blk.half[i][cols], self.settings, up=tr.up_axis,
+                             grounded=None if blk.grounded is None else blk.grounded[i][cols])
             for field in ("ref_end", "npass", "state", "toi", "normal", "voxel", "block", "candidates",
-                          "points", "flags", "error"):
+                          "points", "flags", "error", "raised", "climb"):
                 getattr(rows, field)[cols] = getattr(got, field)
         if i == 1:  # the start should continue where the previous frame's recorded end left off
             tol = self.settings.tolerance * tr.voxel_size

@@ -72,6 +72,20 @@ TABLE: tuple[Kind, ...] = (
          "frames)", "gap",
          "the entity is active on frames f and f+1 and |start(f+1) - end(f)| > tol (NaN never counts; "
          "error = that distance)"),
+    Kind("grounded_mismatch", "warning", 7, "wrong on-ground flag",
+         "the recorded on-ground flag says grounded while no solid supports the box at the recorded end, or "
+         "airborne while it rests on solid (the grounded rule; a grounded claim gets the tolerance on top; error "
+         "= gap to the floor below, when within a voxel)", "gnd",
+         "the trace records /frames/grounded g for the row; supported(c) = some solid box's top face lies "
+         "within 2 skin below the box's bottom face at c with open footprints overlapping; g and not "
+         "supported within 2 skin + tol, or not g and supported(e)"),
+    Kind("step_mismatch", "warning", 8, "stepped differently",
+         "with a step height set: the recorded end rose more than the step height plus the wanted upward "
+         "motion, or exactly one of the reference and the recording stepped up (error = rise over the "
+         "reference's plain solve)", "step",
+         "step height H > 0; up component: e_up - s_up > H + max(m_up, 0) + tol, or exactly one of "
+         "(the reference kept its raised try) and (the box was grounded at s and e_up exceeds the "
+         "reference's plain solve by more than tol)"),
 )
 
 #: Kind names in bit order.
@@ -88,6 +102,7 @@ ALL_BITS = (1 << KIND_COUNT) - 1
 # Bit positions as plain ints, for the kernels (numba compiles module-level ints in as constants).
 INVALID, START_OVERLAP, PENETRATION, TUNNELING, SNAG, MISMATCH, DISCONTINUITY = (BY_NAME[n].bit for n in (
     "invalid", "start_overlap", "penetration", "tunneling", "snag", "mismatch", "discontinuity"))
+GROUNDED_MISMATCH, STEP_MISMATCH = (BY_NAME[n].bit for n in ("grounded_mismatch", "step_mismatch"))
 assert all(k.bit == i for i, k in enumerate(TABLE)), "a kind's bit is its position in TABLE"
 
 

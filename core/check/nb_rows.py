@@ -10,10 +10,13 @@ from __future__ import annotations
 import numpy as np
 from numba import prange
 
-from resweep.core.check.kinds import INVALID, KIND_COUNT, MISMATCH, PENETRATION, SNAG, START_OVERLAP, TUNNELING
+from resweep.core.check.kinds import (GROUNDED_MISMATCH, INVALID, KIND_COUNT, MISMATCH, PENETRATION, SNAG,
+                                     START_OVERLAP, STEP_MISMATCH, TUNNELING)
 from resweep.core.jit.nb_float import fl
 from resweep.core.jit.nb_jit import kernel
-from resweep.core.solve.nb_slide import path_enters_solid, solve_row
+from resweep.core.check.nb_model_kinds import model_kinds
+from resweep.core.solve.nb_models import solve_model
+from resweep.core.solve.nb_slide import path_enters_solid
 from resweep.core.solve.settings import CLEAR, HIT, STARTED_INSIDE
 from resweep.core.solve.nb_walk import STACK_ROWS
 from resweep.core.world.nb_world import overlap_depth
@@ -163,8 +166,8 @@ def classify_end(i, s, m, e, h, hit, run, contact, d0, world, tol, broad, stack,
 
 
 @kernel(inline="always")
-def check_row(i, start, motion, rec_end, half, world, skin, passes, tol, broad, stack,
-              ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, flags, err):
+def check_row(i, start, motion, rec_end, half, world, skin, passes, tol, broad, mp, ground, stack,
+              ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, raised_out, climb_out, flags, err):
     """Solve and classify row ``i`` (arguments as :func:`check_rows`). Inlined into the row loop:
     a call with this many array arguments costs about as much as a short solve."""
     vs = world.voxel_size
@@ -177,30 +180,43 @@ def check_row(i, start, motion, rec_end, half, world, skin, passes, tol, broad, 
     if not row_valid(s, m, e, h):
         invalid_row(i, ref_end, npass, state, pts, flags, vs)
         clear_passes(i, 0, t_out, n_out, v_out, type_out, cand_out, vs)
+        raised_out[i] = False
+        climb_out[i] = fl(vs, 0)
         return
-    run, hit, contact = solve_row(s, m, h, world, skin, passes, broad, stack, i, ref_end, t_out, n_out, v_out,
-                                  type_out, cand_out, pts)
+    # the model is a runtime code (one compiled kernel for every model), see nb_models
+    run, hit, contact, raised, climb, plain_up = solve_model(s, m, h, world, skin, passes, broad, stack, mp, i,
+                                                             ref_end, t_out, n_out, v_out, type_out, cand_out, pts)
+    raised_out[i] = raised
+    climb_out[i] = climb
     clear_passes(i, run, t_out, n_out, v_out, type_out, cand_out, vs)
     npass[i] = run
     d0 = overlap_depth(s, h, world)
     f = start_flags(i, d0, hit, tol, state, err)
-    flags[i] = f | classify_end(i, s, m, e, h, hit, run, contact, d0, world, tol, broad, stack, ref_end,
-                                n_out, err)
+    f |= classify_end(i, s, m, e, h, hit, run, contact, d0, world, tol, broad, stack, ref_end, n_out, err)
+    mk, g_err, s_err = model_kinds(s, m, e, h, world, skin, tol, mp, ground[i], raised, plain_up)
+    if mk:
+        f |= mk
+        err[i, GROUNDED_MISMATCH] = g_err
+        err[i, STEP_MISMATCH] = s_err
+    flags[i] = f
 
 
 @kernel(parallel=True, nogil=True)
-def check_rows(start, motion, rec_end, half, world, skin, passes, tol, broad,
-               ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, flags, err):
+def check_rows(start, motion, rec_end, half, world, skin, passes, tol, broad, mp, ground,
+               ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, raised, climb, flags, err):
     """Re-solve rows and classify the recorded end against the reference.
 
     Args:
         start, motion, rec_end, half: float (M, 3) world units, all of the world's float type.
         skin, tol: float world units; passes: int; broad: nb_solve.SCAN, WALK or AUTO.
+        mp: nb_models.ModelParams (model code, up axis, axis order, push-out and step-up settings).
+        ground: int8 (M,) recorded on-ground flag after the frame (1, 0, or -1 when not recorded).
     Outputs (preallocated, every slot written; may be uninitialised):
         ref_end float (M, 3); npass int8 (M,) passes run; state int8 (M,) CLEAR/HIT/STARTED_INSIDE;
         t_out float (M, P); n_out int8 (M, P, 3); v_out int64 (M, P, 3); type_out int32 (M, P);
         cand_out int32 (M, P) boxes the narrow phase tested; pts float (M, P+1, 3) slide path
-        points; flags int32 (M,) bit k set when kind k applies;
+        points; raised bool (M,) step-up kept the raised try; climb float (M,) height it climbed;
+        flags int32 (M,) bit k set when kind k applies;
         err float (M, KIND_COUNT) error value per kind (world units; NaN where it does not apply).
     """
     M = start.shape[0]
@@ -211,8 +227,8 @@ def check_rows(start, motion, rec_end, half, world, skin, passes, tol, broad,
         # updates of the shared arrays' counts (measured: a separate row-loop function is ~1.7x
         # slower, and per-row counts stop two threads from scaling).
         for i in range(task * ROWS_PER_TASK, min(M, (task + 1) * ROWS_PER_TASK)):
-            check_row(i, start, motion, rec_end, half, world, skin, passes, tol, broad, stack,
-                      ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, flags, err)
+            check_row(i, start, motion, rec_end, half, world, skin, passes, tol, broad, mp, ground, stack,
+                      ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, raised, climb, flags, err)
 
 
 @kernel(parallel=True, nogil=True)

@@ -11,7 +11,8 @@ import numpy as np
 
 from resweep.core.check import nb_rows
 from resweep.core.check.kinds import KIND_COUNT
-from resweep.core.solve.settings import BROAD_PHASES, SolverSettings
+from resweep.core.solve import nb_models
+from resweep.core.solve.settings import AXES, BROAD_PHASES, MODELS, SolverSettings
 from resweep.core.world.kernel import kernel_world
 from resweep.core.world.voxel_world import VoxelWorld
 
@@ -37,6 +38,13 @@ class RowResults:
             is applied once, at the end: see solve.nb_slide).
         flags: int32 (M,) bit k set when divergence kind k applies (see kinds.KINDS).
         error: float (M, KIND_COUNT) error value per kind, world units, NaN where it does not apply.
+        raised: bool (M,) step-up kept the raised try (``settings.step_height`` > 0).
+        climb: float (M,) height the kept raised try climbed, world units (0 otherwise).
+
+    Models without passes (axis, pushout) report one pass: t = 1 when nothing stopped them, else
+    the fraction of the motion travelled (axis) ; the normals of the clipped (axis) or pushed
+    (pushout, push direction) axes; the voxel that clipped the last clipped axis (axis) or was
+    pushed out of first (pushout); ``candidates`` = boxes tested (axis) or pushes made (pushout).
     """
 
     ref_end: np.ndarray
@@ -50,6 +58,8 @@ class RowResults:
     points: np.ndarray
     flags: np.ndarray
     error: np.ndarray
+    raised: np.ndarray
+    climb: np.ndarray
 
     @classmethod
     def alloc(cls, m: int, passes: int, dtype) -> "RowResults":
@@ -57,7 +67,8 @@ class RowResults:
         return cls(np.empty((m, 3), dtype), np.empty(m, np.int8), np.empty(m, np.int8), np.empty((m, passes), dtype),
                    np.empty((m, passes, 3), np.int8), np.empty((m, passes, 3), np.int64),
                    np.empty((m, passes), np.int32), np.empty((m, passes), np.int32),
-                   np.empty((m, passes + 1, 3), dtype), np.empty(m, np.int32), np.empty((m, KIND_COUNT), dtype))
+                   np.empty((m, passes + 1, 3), dtype), np.empty(m, np.int32), np.empty((m, KIND_COUNT), dtype),
+                   np.empty(m, bool), np.empty(m, dtype))
 
     def head(self, m: int) -> "RowResults":
         """Views of the first ``m`` rows."""
@@ -69,7 +80,7 @@ class RowResults:
                    np.ones((m, passes), dtype), np.zeros((m, passes, 3), np.int8),
                    np.zeros((m, passes, 3), np.int64), np.full((m, passes), -1, np.int32),
                    np.zeros((m, passes), np.int32), np.zeros((m, passes + 1, 3), dtype),
-                   np.zeros(m, np.int32), np.zeros((m, KIND_COUNT), dtype))
+                   np.zeros(m, np.int32), np.zeros((m, KIND_COUNT), dtype), np.zeros(m, bool), np.zeros(m, dtype))
 
 
 def _rows(a, dtype) -> np.ndarray:
@@ -79,8 +90,17 @@ def _rows(a, dtype) -> np.ndarray:
     return out if out.flags.writeable else out.copy()
 
 
+def model_params(settings: SolverSettings, up: str, voxel_size: float, dtype) -> nb_models.ModelParams:
+    """The model settings as the kernels take them (world units in ``dtype``); ``up`` "x", "y" or "z"."""
+    ft = np.dtype(dtype).type
+    order = [AXES.index(a) for a in settings.order_for(up)]
+    return nb_models.ModelParams(np.int64(MODELS[settings.model]), np.int64(AXES.index(up)), *map(np.int64, order),
+                                 ft(settings.substep * voxel_size), np.int64(settings.iterations),
+                                 ft(settings.step_height * voxel_size))
+
+
 def solve_rows(world: VoxelWorld, start, motion, recorded_end, half, settings: SolverSettings,
-               broad: str = "auto", out: RowResults | None = None) -> RowResults:
+               broad: str = "auto", out: RowResults | None = None, up: str = "y", grounded=None) -> RowResults:
     """Re-solve and classify M entity-frames against the world as it stands now.
 
     Args:
@@ -91,6 +111,10 @@ def solve_rows(world: VoxelWorld, start, motion, recorded_end, half, settings: S
             the whole swept bounding box) or "walk" (always the walk); see ``BROAD_PHASES``.
         out: results of at least M rows, of this precision and pass count, to write into (a
             streaming check reuses one across blocks); the first M rows are returned.
+        up: the trace's up axis ("x", "y" or "z"): step-up, the grounded rule, push-out ties and
+            the default axis order use it.
+        grounded: int8 (M,) recorded on-ground flag after the frame (1, 0; -1 = not recorded) or
+            None when the trace has none.
     """
     dt = settings.dtype
     ft = dt.type
@@ -105,10 +129,13 @@ def solve_rows(world: VoxelWorld, start, motion, recorded_end, half, settings: S
     if not len(s):
         return out
     vs = world.voxel_size
+    g = np.full(len(s), -1, np.int8) if grounded is None else np.ascontiguousarray(grounded, np.int8).reshape(-1)
+    if len(g) != len(s):
+        raise ValueError(f"grounded holds {len(g)} rows, {len(s)} needed")
     nb_rows.check_rows(s, m, e, h, kernel_world(world, dt), ft(settings.skin * vs), np.int64(settings.passes),
-                        ft(settings.tolerance * vs), np.int64(BROAD_PHASES[broad]), out.ref_end, out.npass,
-                        out.state, out.toi, out.normal, out.voxel, out.block, out.candidates, out.points,
-                        out.flags, out.error)
+                       ft(settings.tolerance * vs), np.int64(BROAD_PHASES[broad]), model_params(settings, up, vs, dt),
+                       g, out.ref_end, out.npass, out.state, out.toi, out.normal, out.voxel, out.block,
+                       out.candidates, out.points, out.raised, out.climb, out.flags, out.error)
     return out
 
 

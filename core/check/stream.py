@@ -37,12 +37,16 @@ class Divergence:
     start: list = field(default_factory=list)
     motion: list = field(default_factory=list)
     reason: str | None = None
+    step: dict | None = None
 
     def as_json(self) -> dict:
-        return {"frame": self.frame, "time": self.time, "entity": self.entity, "name": self.name,
-                "kind": self.kind, "severity": self.severity, "start": self.start, "motion": self.motion,
-                "recorded_end": self.recorded_end, "reference_end": self.reference_end, "error": self.error,
-                "reason": self.reason, "passes": self.passes}
+        doc = {"frame": self.frame, "time": self.time, "entity": self.entity, "name": self.name,
+               "kind": self.kind, "severity": self.severity, "start": self.start, "motion": self.motion,
+               "recorded_end": self.recorded_end, "reference_end": self.reference_end, "error": self.error,
+               "reason": self.reason, "passes": self.passes}
+        if self.step is not None:
+            doc["step"] = self.step
+        return doc
 
 
 @dataclass
@@ -92,6 +96,11 @@ def pass_list(rows: RowResults, i: int) -> list:
         out.append({"t": float(rows.toi[i, k]), "normal": [int(x) for x in rows.normal[i, k]],
                     "voxel": [int(x) for x in rows.voxel[i, k]] if hit else None})
     return out
+
+
+def step_info(rows: RowResults, i: int, voxel_size: float) -> dict:
+    """Step-up outcome of row ``i``: which try the reference kept and the height climbed (voxels)."""
+    return {"kept": "raised" if rows.raised[i] else "plain", "climbed": float(rows.climb[i]) / voxel_size}
 
 
 def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit: int = 1000,
@@ -144,12 +153,14 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
             nb_gather.gather_rows(blk.start, blk.motion, blk.end, blk.active, prev_end, prev_active, has_prev,
                                  fr, col, tol, start, motion, end, gap, disc)
             half = blk.half[0][col] if blk.half.strides[0] == 0 else blk.half[fr, col]
-            rows = solve_rows(world, start, motion, end, half, settings, out=buf.rows_out(M))
+            ground = None if blk.grounded is None else blk.grounded[fr, col]
+            rows = solve_rows(world, start, motion, end, half, settings, out=buf.rows_out(M), up=trace.up_axis,
+                              grounded=ground)
             rows.flags |= disc.astype(np.int32) << DISCONTINUITY
             rows.error[disc, DISCONTINUITY] = gap[disc]
             report.entity_frames += M
             _count(report, rows.flags)
-            _collect(report, trace, rows, blk, fr, col, limit, dt)
+            _collect(report, trace, rows, blk, fr, col, limit, dt, settings.step_height > 0)
             if on_block is not None:
                 on_block(BlockResult(fr + blk.f0, col, rows))
         prev_end = np.asarray(blk.end[-1], np.float64)
@@ -194,10 +205,12 @@ def _count(report: TraceReport, flags: np.ndarray):
         report.counts[kind] += int(np.count_nonzero(nz & kind_mask(kind)))
 
 
-def _collect(report: TraceReport, trace: Trace, rows: RowResults, blk, fr, cols, limit: int, dtype):
+def _collect(report: TraceReport, trace: Trace, rows: RowResults, blk, fr, cols, limit: int, dtype,
+             stepping: bool = False):
     """Append the divergences of solved rows (frames ``blk.f0 + fr``, columns ``cols``) up to
     ``limit``; inputs are read from the block (file dtype) only for the rows kept. ``dtype``: the
-    solve's float type (an invalid row's reason is judged in it, as the kernel judged the row)."""
+    solve's float type (an invalid row's reason is judged in it, as the kernel judged the row);
+    ``stepping``: step-up is on, so records say which try was kept."""
     if len(report.divergences) >= limit:
         return
     for i in np.flatnonzero(rows.flags):
@@ -213,5 +226,6 @@ def _collect(report: TraceReport, trace: Trace, rows: RowResults, blk, fr, cols,
                 err if np.isfinite(err) else None, pass_list(rows, i),
                 time=float(trace.time[blk.f0 + r]), name=str(trace.names[c]),
                 start=_finite_list(row[0]), motion=_finite_list(row[1]),
-                reason=validity.reason(*row, dtype=dtype) if BY_NAME[kind].bit == INVALID else None))
+                reason=validity.reason(*row, dtype=dtype) if BY_NAME[kind].bit == INVALID else None,
+                step=step_info(rows, i, trace.voxel_size) if stepping else None))
 

@@ -12,6 +12,7 @@ import numpy as np
 
 from resweep.core.world.shapes import shapes_from_lists
 from resweep.core.world.voxel_world import VoxelWorld, chunks_from_dense
+from resweep.core.demo import terrace
 from resweep.core.demo.engine import AIR, push_out_step
 from resweep.core.format.writer import write_trace
 
@@ -181,6 +182,7 @@ DEMO_FILES = {
                       title="Quarry: walker, dasher, climber, crate and hopper (toy push-out engine)"),
     "quarry_far_f32.h5": dict(offset=(65536, 0, -65536), dtype=np.float32,
                               title="Quarry moved 65536 voxels from the origin, engine in float32"),
+    **terrace.TERRACE_FILES,  # the per-axis stepper and the substep pusher (terrace.py)
 }
 
 
@@ -190,8 +192,12 @@ def write_demo_traces(folder) -> list[Path]:
     folder.mkdir(parents=True, exist_ok=True)
     out = []
     for name, spec in DEMO_FILES.items():
-        kw = simulate(offset=spec["offset"], dtype=spec["dtype"])
         path = folder / name
+        if "engine" in spec:
+            write_trace(path, title=spec["title"], producer=spec["producer"], **terrace.simulate(spec["engine"]))
+            out.append(path)
+            continue
+        kw = simulate(offset=spec["offset"], dtype=spec["dtype"])
         write_trace(path, title=spec["title"], producer="resweep toy push-out engine", **kw)
         out.append(path)
     return out

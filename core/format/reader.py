@@ -30,7 +30,8 @@ class FrameBlock:
         start, motion, end: float (n, N, 3) in the file's frame dtype, world units.
         active: bool (n, N).
         half: float (n, N, 3) half extents in effect per row (per-frame override or entity table).
-        grounded: bool (n, N) from ``/frames/grounded``, or None when the file has none.
+        grounded: int8 (n, N) the engine's on-ground flag after each frame (1, 0), or None when
+            the trace does not record it.
     """
 
     f0: int
@@ -253,6 +254,11 @@ class Trace:
         self.names = names
         self.entity_count = N
 
+    @property
+    def has_grounded(self) -> bool:
+        """Whether the trace records the engine's on-ground flag (``/frames/grounded``)."""
+        return self._ds["grounded"] is not None
+
     def _load_frames(self):
         f = self._f
         f.group("/frames")
@@ -318,7 +324,7 @@ class Trace:
         else:
             half = np.broadcast_to(self.half_extents[None], (n, self.entity_count, 3))
         gd = self._ds["grounded"]
-        grounded = rd(gd, rows).astype(bool) if gd is not None else None
+        grounded = (rd(gd, rows) != 0).astype(np.int8) if gd is not None else None
         return FrameBlock(f0, f1, start, motion, end, active, half, grounded)
 
     def block_frames(self, rows: int = 1 << 17) -> int:

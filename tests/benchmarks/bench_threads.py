@@ -24,7 +24,7 @@ from _bench import Row, common_args, print_table, rate, yardstick_trace
 
 from resweep.core import SolverSettings, check_trace, open_trace
 from resweep.core.check import nb_rows as nb_check
-from resweep.core.check.rows import RowResults, warm_up
+from resweep.core.check.rows import RowResults, model_params, warm_up
 from resweep.core.world.kernel import kernel_world
 
 FIELDS = ("ref_end", "npass", "state", "toi", "normal", "voxel", "block", "candidates", "points", "flags", "error")
@@ -48,11 +48,14 @@ def run(args) -> list[Row]:
     st = SolverSettings()
     out = RowResults.empty(len(s), st.passes, np.float64)
     kw = kernel_world(world, np.float64)
+    mp = model_params(st, tr.up_axis, world.voxel_size, np.float64)
+    ground = np.full(len(s), -1, np.int8)
 
     def kernel():
         nb_check.check_rows(s, m, e, h, kw, np.float64(st.skin), np.int64(st.passes), np.float64(st.tolerance),
-                            np.int64(2), out.ref_end, out.npass, out.state, out.toi, out.normal, out.voxel,
-                            out.block, out.candidates, out.points, out.flags, out.error)
+                            np.int64(2), mp, ground, out.ref_end, out.npass, out.state, out.toi, out.normal,
+                            out.voxel, out.block, out.candidates, out.points, out.raised, out.climb, out.flags,
+                            out.error)
 
     def whole_check():
         with open_trace(path) as tr:

@@ -40,7 +40,7 @@ def test_json_to_stdout_has_documented_shape():
     assert set(t) == {"path", "frames", "entities", "entity_frames", "counts", "divergences"}
     assert t["frames"] == 240 and t["entities"] == 5
     assert set(t["counts"]) == {"invalid", "start_overlap", "penetration", "tunneling", "snag", "mismatch",
-                                "discontinuity"}
+                                "discontinuity", "grounded_mismatch", "step_mismatch"}
     assert len(t["divergences"]) == 5 and sum(t["counts"].values()) > 5  # list capped, counts exact
     for d in t["divergences"]:
         assert set(d) == {"frame", "time", "entity", "name", "kind", "severity", "start", "motion", "recorded_end",

@@ -46,16 +46,17 @@ def _write(path, kw):
     return str(path)
 
 
-def _run(path, precision="float64", rows_per_block=1 << 17):
-    """(report JSON text, per-row arrays keyed by frame and entity id, in (frame, id) order)."""
-    got = {k: [] for k in FIELDS + ("frame", "id")}
+def _run(path, precision="float64", rows_per_block=1 << 17, settings=None, fields=FIELDS):
+    """(report JSON text, per-row arrays keyed by frame and entity id, in (frame, id) order);
+    ``settings`` replace the defaults of ``precision``."""
+    got = {k: [] for k in fields + ("frame", "id")}
     with open_trace(path) as tr:
         def keep(b):
             got["frame"].append(b.frame)
             got["id"].append(tr.ids[b.column])
-            for k in FIELDS:
+            for k in fields:
                 got[k].append(getattr(b.rows, k))
-        report = check_trace(tr, SolverSettings(precision=precision), limit=100000, on_block=keep,
+        report = check_trace(tr, settings or SolverSettings(precision=precision), limit=100000, on_block=keep,
                              rows_per_block=rows_per_block)
     rows = {k: np.concatenate(v) for k, v in got.items()}
     order = np.lexsort((rows["id"], rows["frame"]))

@@ -77,7 +77,8 @@ def test_each_kind_detected_with_hand_worked_error(kinds_trace):
         assert (0, d) not in found
         # Counts are exact and match the list.
         assert report.counts == {"invalid": 1, "start_overlap": 1, "penetration": 1, "tunneling": 1,
-                                 "snag": 1, "mismatch": 1, "discontinuity": 1}
+                                 "snag": 1, "mismatch": 1, "discontinuity": 1, "grounded_mismatch": 0,
+                                 "step_mismatch": 0}
         assert report.entity_frames == len(ROWS) + 2
 
 

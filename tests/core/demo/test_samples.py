@@ -54,3 +54,17 @@ def test_far_trace_is_float32_and_differs_by_precision():
         r64 = check_trace(tr, SolverSettings(precision="float64"))
         r32 = check_trace(tr, SolverSettings(precision="float32"))
     assert r64.counts != r32.counts  # precision far from the origin changes the verdicts
+
+
+def test_terrace_samples_show_the_model_kinds():
+    # The per-axis stepper forgets the ceiling check: it steps into the beam (step_mismatch,
+    # penetration); the substep pusher's on-ground flag lags a frame (grounded_mismatch).
+    with open_trace(ROOT / "terrace_axis.h5") as tr:
+        assert tr.has_grounded
+        axis = check_trace(tr, SolverSettings(model="axis", step_height=0.6))
+    with open_trace(ROOT / "terrace_pushout.h5") as tr:
+        push = check_trace(tr, SolverSettings(model="pushout", substep=0.5))
+    assert axis.counts["step_mismatch"] >= 1 and axis.counts["penetration"] >= 1
+    assert push.counts["grounded_mismatch"] >= 4
+    # Following the engines' own models, nothing else diverges in position on the pusher.
+    assert sum(push.counts[k] for k in ("penetration", "tunneling", "snag", "mismatch")) == 0
