@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-pv = pytest.importorskip("pyvista")
+import pyvista as pv  # noqa: E402
 
 from resweep.app.scene import style  # noqa: E402
 from resweep.app.scene.caption import BAND_RGB  # noqa: E402
