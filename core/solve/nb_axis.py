@@ -67,7 +67,7 @@ def clip_axis(p, h, world, a, d, skin):
         return d, False, x, y, z, np.int64(-1), tested
     # Stop at the box, then back off by skin with the sweep-and-slide rule (shared, so one skin rule
     # holds for every model): never behind the step's start.
-    q, _, _ = slide_axis(p[a], d, g / abs(d), fl(vs, 0), skin, True)
+    _, _, _, q = slide_axis(p[a], d, g / abs(d), fl(vs, 0), skin, True)  # the backed-off centre
     nd = q - p[a]
     if abs(nd) > abs(d):
         nd = d

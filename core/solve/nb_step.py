@@ -16,7 +16,7 @@ from resweep.core.jit.nb_float import fl
 from resweep.core.jit.nb_jit import hot, kernel
 from resweep.core.solve.nb_axis import along, axis_solve
 from resweep.core.solve.nb_narrow import FIRST_HIT, blocked_axes
-from resweep.core.solve.nb_slide import search, slide_axis
+from resweep.core.solve.nb_slide import backed_off_end, search, slide_axis
 from resweep.core.solve.settings import SLIDE
 
 #: Voxels by which the raised try's horizontal displacement must exceed the plain one's.
@@ -26,23 +26,30 @@ STEP_GAIN = 1e-6
 @hot
 def slide_end(p, r, h, world, skin, passes, broad, stack):
     """End of the sweep-and-slide solve of ``nb_slide.solve_row`` without its per-pass outputs:
-    (end 3-tuple, OR of the blocked axes over all passes)."""
+    (end 3-tuple, OR of the blocked axes over all passes). Same skin rule: passes move to the exact
+    contact, the back-off is applied once at the end (``nb_slide.backed_off_end``)."""
     vs = world.voxel_size
     bits = 0
+    bk = p
     for _ in range(passes):
         if r[0] == 0 and r[1] == 0 and r[2] == 0:
             break
         tmin, axes, hx, hy, hz, hb, htype, cand = search(p, r, h, world, broad, FIRST_HIT, stack)
         if axes == 0:
-            return (p[0] + r[0], p[1] + r[1], p[2] + r[2]), bits
+            p = (p[0] + r[0], p[1] + r[1], p[2] + r[2])
+            break
         axes = blocked_axes(axes)
-        bits |= axes
         rest = fl(vs, 1) - tmin
-        q0, r0, _ = slide_axis(p[0], r[0], tmin, rest, skin, axes & 1)
-        q1, r1, _ = slide_axis(p[1], r[1], tmin, rest, skin, axes & 2)
-        q2, r2, _ = slide_axis(p[2], r[2], tmin, rest, skin, axes & 4)
+        q0, r0, _, b0 = slide_axis(p[0], r[0], tmin, rest, skin, axes & 1)
+        q1, r1, _, b1 = slide_axis(p[1], r[1], tmin, rest, skin, axes & 2)
+        q2, r2, _, b2 = slide_axis(p[2], r[2], tmin, rest, skin, axes & 4)
+        bk = (b0 if axes & 1 else bk[0], b1 if axes & 2 else bk[1], b2 if axes & 4 else bk[2])
+        bits |= axes
         p = (q0, q1, q2)
         r = (r0, r1, r2)
+    if bits != 0:
+        back = (bk[0] if bits & 1 else p[0], bk[1] if bits & 2 else p[1], bk[2] if bits & 4 else p[2])
+        p = backed_off_end(p, back, h, world, broad, stack)
     return p, bits
 
 
