@@ -46,7 +46,7 @@ class Limits:
         """``"limit NAME=V (raise it with --max NAME=N)"`` for messages."""
         v = getattr(self, name)
         shown = f"{v:,}" if isinstance(v, int) else f"{v:g}"
-        return f"over the limit {name}={shown} (raise it with --max {name}=N or {ENV}=\"{name}=N\")"
+        return f"over the limit {name}={shown}{' voxels' if name in ('extent', 'motion') else ''} (raise it with --max {name}=N or {ENV}=\"{name}=N\")"
 
     def with_text(self, text: str) -> "Limits":
         """These limits with ``"NAME=N,NAME=N"`` applied; ValueError naming a bad item."""

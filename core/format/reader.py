@@ -391,13 +391,13 @@ def _extent_limit(f, lim, name, half, vs, active=None, f0=0, ids=None):
     if half.ndim == 2:
         where = np.flatnonzero(big)
         if len(where):
-            raise f.fail(name, f"row {int(where[0])}: half extents {half[where[0]].tolist()} are {lim.hint('extent')} "
-                               "(voxels)")
+            raise f.fail(name, f"row {int(where[0])}: half extents {half[where[0]].tolist()} (world units) are "
+                               f"{lim.hint('extent')}")
         return
     hit = _first_over(big, active)
     if hit is not None:
         raise f.fail(name, f"frame {f0 + int(hit[0])}, entity {int(ids[hit[1]])}: half extents "
-                           f"{np.asarray(half[hit]).tolist()} are {lim.hint('extent')} (voxels)")
+                           f"{np.asarray(half[hit]).tolist()} (world units) are {lim.hint('extent')}")
 
 
 def _motion_limit(f, lim, motion, vs, active, f0, ids):
@@ -407,7 +407,7 @@ def _motion_limit(f, lim, motion, vs, active, f0, ids):
     hit = _first_over(big, active)
     if hit is not None:
         raise f.fail("/frames/motion", f"frame {f0 + int(hit[0])}, entity {int(ids[hit[1]])}: motion "
-                                       f"{np.asarray(motion[hit]).tolist()} is {lim.hint('motion')} (voxels per axis)")
+                                       f"{np.asarray(motion[hit]).tolist()} (world units, per axis) is {lim.hint('motion')}")
 
 
 def _as_str(v):
