@@ -11,6 +11,7 @@ from resweep.core.errors import TraceFormatError
 from resweep.core.check.rows import warm_up
 from resweep.core.solve.settings import SolverSettings
 from resweep.core.format.reader import open_trace
+from resweep.core.format.vet import vet
 
 from resweep.app.cli.exits import EXIT_DIVERGED, EXIT_OK, EXIT_USAGE
 from resweep.app.cli.output import emit_json
@@ -103,6 +104,7 @@ def run(args) -> int:
     reports, status = [], EXIT_OK
     for path in args.traces:
         try:
+            vet(path)  # isolated first open: a file that hangs or crashes HDF5 stops there
             with open_trace(path) as trace:
                 if trace.frame_dtype not in warmed:  # only the kernels this trace needs
                     compile_notice(settings.precision, trace.frame_dtype, quiet=args.quiet)

@@ -5,12 +5,14 @@ import sys
 
 from resweep.core.analysis.describe import describe
 from resweep.core.format.reader import open_trace
+from resweep.core.format.vet import vet
 
 from resweep.app.cli.exits import EXIT_OK, EXIT_USAGE
 from resweep.app.cli.output import emit_json
 
 
 def run(args) -> int:
+    vet(args.trace)  # isolated first open
     with open_trace(args.trace) as trace:
         info = describe(trace)
     if args.json:

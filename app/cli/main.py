@@ -52,6 +52,12 @@ def _size_arg(text: str):
     return w, h
 
 
+def _limits_opt(sp):
+    sp.add_argument("--max", action="append", default=[], metavar="NAME=N",
+                    help="raise a size limit for hostile-file protection, e.g. --max voxels=500000000 "
+                         "(limits: see the trace format reference)")
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="resweep", description="Re-solve recorded voxel collision traces with a reference "
                 "swept-AABB solver and report where the recorded run diverged.")
@@ -70,6 +76,7 @@ def build_parser() -> argparse.ArgumentParser:
                        description="Re-solve every recorded entity-frame and report divergences. Exit status: "
                                    "0 no failing divergence, 1 failing divergence found, 2 usage error or bad trace.")
     c.add_argument("traces", nargs="+", metavar="TRACE")
+    _limits_opt(c)
     solver_opts(c)
     c.add_argument("--fail-on", type=_kinds_arg, default=None, metavar="KIND,...",
                    help="kinds that make the exit status 1 (default: every error-severity kind; 'none' never)")
@@ -81,15 +88,18 @@ def build_parser() -> argparse.ArgumentParser:
 
     i = sub.add_parser("info", help="describe a trace and list validation problems")
     i.add_argument("trace", metavar="TRACE")
+    _limits_opt(i)
     i.add_argument("--json", metavar="-", help="write JSON to stdout ('-') or to a file")
 
     v = sub.add_parser("view", help="open the desktop viewer")
     v.add_argument("trace", nargs="?", metavar="TRACE", help="trace to open (default: the bundled demo)")
     v.add_argument("--frame", type=_positive_int, default=0, metavar="N")
     v.add_argument("--entity", type=int, default=None, metavar="ID")
+    _limits_opt(v)
 
     s = sub.add_parser("snapshot", help="render the viewer picture off screen to a PNG")
     s.add_argument("trace", metavar="TRACE")
+    _limits_opt(s)
     s.add_argument("--frame", type=_positive_int, required=True, metavar="N")
     s.add_argument("--entity", type=int, default=None, metavar="ID")
     s.add_argument("--size", type=_size_arg, default=(1280, 720), metavar="WxH")
@@ -102,6 +112,11 @@ def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     from resweep.core.errors import ResweepError
+    from resweep.core.format.limits import raise_limits
+    try:
+        raise_limits(",".join(args.max))  # also read by the isolated validator and the viewer
+    except ValueError as exc:
+        parser.error(f"--max: {exc}")
     try:
         # One module per command, imported only when used (a check never loads the viewer).
         command = importlib.import_module(f"resweep.app.cli.{args.command}")
@@ -117,7 +132,8 @@ def main(argv=None) -> int:
     except Exception as exc:  # the boundary: one line, never a traceback (unless debugging)
         if os.environ.get("RESWEEP_DEBUG"):
             raise
-        sys.stderr.write(f"resweep {args.command}: internal error: {type(exc).__name__}: {exc} "
+        from resweep.core.errors import printable
+        sys.stderr.write(f"resweep {args.command}: internal error: {type(exc).__name__}: {printable(exc)} "
                          "(set RESWEEP_DEBUG=1 for a traceback)\n")
         return EXIT_INTERNAL
 

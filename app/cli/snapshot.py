@@ -27,6 +27,8 @@ def run(args) -> int:
                else "is not writable")
         sys.stderr.write(f"resweep snapshot: {args.output}: cannot write the picture ({why})\n")
         return EXIT_USAGE
+    from resweep.core.format.vet import vet
+    vet(args.trace)  # isolated first open
     settings = SolverSettings(tolerance=args.tolerance, skin=args.skin, passes=args.passes,
                               precision=args.precision)
     with TraceSession(args.trace, settings) as session:

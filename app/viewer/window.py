@@ -204,7 +204,7 @@ class MainWindow(QMainWindow):
         """Open ``path`` in the background; the current trace stays until the new one is ready."""
         self._pending = {"frame": frame, "entity": entity_id}
         self.status(f"opening {path} …")
-        self.worker.load(str(path), self.pb.settings)
+        self.worker.load(str(path), self.pb.settings, frame or 0)
 
     def open_dialog(self):
         start = self.store.value("dialog/dir", str(Path.home()))
