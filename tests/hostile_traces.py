@@ -9,7 +9,6 @@ signatures up in the file and fail loudly if they are not there).
 from __future__ import annotations
 
 import shutil
-import struct
 
 import h5py
 import numpy as np
@@ -140,7 +139,3 @@ def long_strings(good, dst):
         f.attrs["up_axis"] = "sideways\nand down"
     return dst
 
-
-def superblock_struct_note():
-    """Little-endian helpers used by the fuzz mutators (kept here so byte layouts live in one file)."""
-    return struct.calcsize("<HHIQ")

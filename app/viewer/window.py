@@ -24,7 +24,7 @@ from resweep.app.viewer.playback import Playback
 from resweep.app.viewer.report_md import frame_facts, report_markdown, snapshot_command
 from resweep.app.viewer.flags import TraceFlags
 from resweep.app.viewer.timeline import ACCENT, GROOVE, INK, PANEL, Timeline, draw_icon
-from resweep.app.viewer.worker import TraceWorker, error_line
+from resweep.app.viewer.worker import TraceWorker, error_line, off_thread, wait_for
 
 ORG, APP = "resweep", "resweep view"
 MAX_RECENT = 8
@@ -54,6 +54,10 @@ class MainWindow(QMainWindow):
         self._pending: dict = {}
         self._solved_upto = 0
         self._camera = "follow"
+        self._refreshing = False  # a frame is being solved off the GUI thread (see refresh_view)
+        self._refresh_again = False
+        self._frame_cancel = False
+        self._frame_thread = None
         self.plotter = None
         self.viewport = None
         self.view_options = None
@@ -296,6 +300,7 @@ class MainWindow(QMainWindow):
         self.cancel_button.setVisible(busy)
 
     def cancel_background(self):
+        self._frame_cancel = True
         if self.worker.is_busy():
             self.worker.cancel()
             self.entities.refresh_counts()
@@ -315,12 +320,50 @@ class MainWindow(QMainWindow):
             self.set_camera(self._camera)
 
     def refresh_view(self):
-        """Solve the current frame (the session caches) and show it everywhere."""
+        """Solve the current frame (the session caches) and show it everywhere.
+
+        The solve runs on a worker thread while the event loop keeps running, so a slow frame
+        never freezes the window; frames asked for meanwhile (keys, playback) are shown next,
+        and Cancel (Esc) stops waiting and keeps the picture on screen.
+        """
         if self.session is None or not self.pb.frame_count:
             return
+        if self._refreshing:
+            self._refresh_again = True
+            return
+        self._refreshing = True
+        try:
+            self._refresh_again = True
+            while self._refresh_again and self.session is not None:
+                self._refresh_again = False
+                self._refresh_once()
+        finally:
+            self._refreshing = False
+
+    def _frame_state(self, session, frame: int):
+        """``session.frame_state(frame)``, solved off the GUI thread unless cached; None when
+        cancelled or superseded (another frame asked for, another trace opened)."""
+        if session.has_frame(frame):
+            return session.frame_state(frame)
+        self._frame_cancel = False
+        stop = lambda: self._frame_cancel or self.session is not session or self._refresh_again  # noqa: E731
+        if not wait_for(self._frame_thread, stop):  # one solve at a time on a session
+            return None
+        self.status(f"solving frame {frame} …")
+        self.cancel_button.setVisible(True)
+        try:
+            self._frame_thread, state = off_thread(lambda: session.frame_state(frame), stop)
+        finally:
+            self.cancel_button.setVisible(self.worker.is_busy())
+        return state
+
+    def _refresh_once(self):
         col = self.pb.focus
         try:
-            self.state = self.session.frame_state(self.pb.frame)
+            state = self._frame_state(self.session, self.pb.frame)
+            if state is None or self.session is None:
+                return
+            self.state = state
             if self.viewport is not None and col is not None:
                 self.viewport.show(self.state, col, self.view_options)
             facts = frame_facts(self.session, self.state, col) if col is not None else None
@@ -466,7 +509,10 @@ class MainWindow(QMainWindow):
 
     def closeEvent(self, event):
         self.pb.set_playing(False)
+        self._frame_cancel = True
         self.worker.shutdown()
+        if self._frame_thread is not None:
+            self._frame_thread.join(10)
         self.store.setValue("window/geometry", self.saveGeometry())
         self.store.setValue("window/state", self.saveState())
         self.store.sync()

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import threading
 
-from PyQt6.QtCore import QObject, pyqtSignal, pyqtSlot
+from PyQt6.QtCore import QCoreApplication, QEventLoop, QObject, pyqtSignal, pyqtSlot
 
 from resweep.core.check.stream import check_trace
 from resweep.core.errors import ResweepError, printable
@@ -27,6 +27,40 @@ def error_line(exc: BaseException) -> str:
     if isinstance(exc, ResweepError):
         return printable(str(exc), 1000)
     return f"{type(exc).__name__}: {printable(exc)}"
+
+
+def off_thread(fn, cancelled, poll_ms: int = 15):
+    """Run ``fn()`` on a worker thread while the Qt event loop keeps running (the window stays
+    responsive); returns ``(thread, value)``, or ``(thread, None)`` as soon as ``cancelled()``
+    is true (the thread then finishes on its own; its result is dropped). Re-raises ``fn``'s error.
+    """
+    box = {}
+
+    def run():
+        try:
+            box["value"] = fn()
+        except BaseException as exc:  # handed to the GUI thread below
+            box["error"] = exc
+    t = threading.Thread(target=run, daemon=True, name="resweep-frame")
+    t.start()
+    while t.is_alive():
+        if cancelled():
+            return t, None
+        QCoreApplication.processEvents(QEventLoop.ProcessEventsFlag.AllEvents, poll_ms)
+        t.join(0.002)
+    if "error" in box:
+        raise box["error"]
+    return t, box.get("value")
+
+
+def wait_for(thread, cancelled, poll_ms: int = 15) -> bool:
+    """Keep the event loop running until ``thread`` ends (True) or ``cancelled()`` (False)."""
+    while thread is not None and thread.is_alive():
+        if cancelled():
+            return False
+        QCoreApplication.processEvents(QEventLoop.ProcessEventsFlag.AllEvents, poll_ms)
+        thread.join(0.002)
+    return True
 
 
 class _Job:
