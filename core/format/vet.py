@@ -28,6 +28,7 @@ import sys
 import tempfile
 import time
 from dataclasses import dataclass
+from pathlib import Path
 
 from resweep.core.errors import TraceFormatError, printable
 from resweep.core.format.limits import ENV as LIMITS_ENV
@@ -137,8 +138,14 @@ def _verdict(proc, cpu: int, mem: int) -> Verdict:
 
 
 # -- cache ------------------------------------------------------------------------------------
-def cache_path():
-    return user_cache_root() / "vetted.json"
+#: Environment variable naming the verdict cache file (tests point it at a temporary folder).
+CACHE_ENV = "RESWEEP_VET_CACHE"
+
+
+def cache_path() -> Path:
+    """The verdict cache: ``$RESWEEP_VET_CACHE``, else ``vetted.json`` in the user cache folder."""
+    env = os.environ.get(CACHE_ENV)
+    return Path(env) if env else user_cache_root() / "vetted.json"
 
 
 def _cache_key(path: str, st) -> str:

@@ -81,9 +81,14 @@ def main(argv=None) -> int:
     import hostile_traces
     work = Path(args.workdir or tempfile.mkdtemp(prefix="resweep-fuzz-"))
     work.mkdir(parents=True, exist_ok=True)
-    os.environ.setdefault("XDG_CACHE_HOME", str(work / "cache"))  # the validator's verdict cache
+    os.environ.setdefault("RESWEEP_VET_CACHE", str(work / "vetted.json"))  # the validator's verdict cache
     repo = HERE.parent.parent
-    bases = [hostile_traces.one_row(work / "base_small.h5"), repo / "sample_traces" / "quarry.h5"]
+    bases = [hostile_traces.one_row(work / "base_small.h5"), repo / "sample_traces" / "quarry.h5",
+             repo / "sample_traces" / "quarry_far_f32.h5"]
+    t_warm = time.perf_counter()
+    from resweep.core.check.rows import warm_up
+    for frame_dtype in ("float64", "float32"):  # compiling (or loading) kernels is not a case's cost
+        warm_up("float64", frame_dtype)
     t0 = time.perf_counter()
     outcomes: Counter = Counter()
     families: Counter = Counter()
@@ -117,6 +122,7 @@ def main(argv=None) -> int:
     self_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
     child_rss = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss * 1024
     print(json.dumps({"cases": args.cases, "seed": args.seed, "seconds": round(time.perf_counter() - t0, 1),
+                      "warm_up_seconds": round(t0 - t_warm, 1),
                       "peak_rss_bytes": self_rss, "peak_child_rss_bytes": child_rss,
                       "families": dict(families), "outcomes": dict(sorted(outcomes.items())),
                       "failures": failures[:50], "failure_count": len(failures)}, indent=1))

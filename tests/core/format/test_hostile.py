@@ -117,7 +117,7 @@ def test_long_sweep_through_empty_far_world_is_clear():
 
 
 def test_hang_inside_hdf5_is_stopped_by_the_isolated_validator(good, tmp_path, monkeypatch):
-    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    monkeypatch.setenv("RESWEEP_VET_CACHE", str(tmp_path / "vetted.json"))
     monkeypatch.setenv(vetmod.CPU_ENV, "2")
     path = H.heap_size_zero(good, tmp_path / "heap.h5")
     with pytest.raises(TraceFormatError) as ei:
@@ -131,7 +131,7 @@ def test_hang_inside_hdf5_is_stopped_by_the_isolated_validator(good, tmp_path, m
 
 
 def test_isolated_validator_accepts_a_good_trace_once(good, tmp_path, monkeypatch):
-    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    monkeypatch.setenv("RESWEEP_VET_CACHE", str(tmp_path / "vetted.json"))
     monkeypatch.setenv("HDF5_PLUGIN_PATH", str(tmp_path))  # removed from the child's environment
     vetmod.vet(good)
     calls = []

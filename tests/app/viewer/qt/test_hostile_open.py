@@ -32,7 +32,7 @@ def _hostile_files(tmp_path, good) -> list:
 
 def test_twenty_hostile_files_in_a_row_each_give_a_dialog_and_the_window_keeps_its_trace(
         qtbot, window, tmp_path, monkeypatch):
-    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    monkeypatch.setenv("RESWEEP_VET_CACHE", str(tmp_path / "vetted.json"))
     monkeypatch.setenv("RESWEEP_VET_CPU", "2")
     good = H.one_row(tmp_path / "good.h5")
     files = _hostile_files(tmp_path, good)
