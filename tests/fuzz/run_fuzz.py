@@ -74,6 +74,7 @@ def main(argv=None) -> int:
     ap.add_argument("--isolate-every", type=int, default=1,
                     help="isolated validation (a child process) on every k-th case and every named case; the "
                          "others validate in this process (same checks, no child; a file that hangs HDF5 then hangs the run)")
+    ap.add_argument("--max-seconds", type=float, default=None, help="stop after this long; report the cases run")
     ap.add_argument("--workdir", default=None)
     args = ap.parse_args(argv)
     os.environ.setdefault("RESWEEP_VET_CPU", "3")
@@ -93,7 +94,11 @@ def main(argv=None) -> int:
     outcomes: Counter = Counter()
     families: Counter = Counter()
     failures = []
+    done = 0
     for k in range(args.cases):
+        if args.max_seconds is not None and time.perf_counter() - t0 > args.max_seconds:
+            break
+        done += 1
         path = str(work / f"case{k:05d}.h5")
         try:
             family = fuzz_cases.make_case(bases, k, args.seed, path)
@@ -121,7 +126,7 @@ def main(argv=None) -> int:
         os.unlink(path)
     self_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
     child_rss = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss * 1024
-    print(json.dumps({"cases": args.cases, "seed": args.seed, "seconds": round(time.perf_counter() - t0, 1),
+    print(json.dumps({"cases": done, "seed": args.seed, "seconds": round(time.perf_counter() - t0, 1),
                       "warm_up_seconds": round(t0 - t_warm, 1),
                       "peak_rss_bytes": self_rss, "peak_child_rss_bytes": child_rss,
                       "families": dict(families), "outcomes": dict(sorted(outcomes.items())),
