@@ -143,3 +143,19 @@ def test_isolated_validator_accepts_a_good_trace_once(good, tmp_path, monkeypatc
     os.utime(good, ns=(1, 1))  # another modification time: validated again
     vetmod.vet(good)
     assert calls == [str(good)]
+
+
+def test_max_option_raises_a_limit_and_rejects_unknown_names(tmp_path, monkeypatch, capsys):
+    from resweep.app.cli.main import main
+    monkeypatch.setenv("RESWEEP_MAX", "")  # main() writes the raised limits here; restored after
+    monkeypatch.setenv("RESWEEP_VET_CACHE", str(tmp_path / "vetted.json"))
+    path = H.far_chunks_motion(tmp_path / "farm.h5")
+    assert main(["check", "--quiet", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "--max motion=N" in err and str(path) in err
+    # Raised, the row is solved (the broad phase visits the two chunks, not 2^36 coordinates).
+    assert main(["check", "--quiet", "--max", "motion=1e13", str(path)]) == 0
+    assert capsys.readouterr().err == ""
+    with pytest.raises(SystemExit) as ei:
+        main(["info", "--max", "bogus=3", str(path)])
+    assert ei.value.code == 2 and "unknown limit 'bogus=3'" in capsys.readouterr().err
