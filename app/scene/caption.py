@@ -17,9 +17,15 @@ TEXT_RGB = (236, 238, 242)
 DIM_RGB = (160, 166, 178)
 
 
+def settings_line(settings) -> str:
+    """The reference solver settings a picture was made with, in words."""
+    return (f"reference: sweep and slide, {settings.passes} passes, skin {settings.skin:g}, "
+            f"tolerance {settings.tolerance:g} voxels, {settings.precision}")
+
+
 def caption_lines(session, state, col: int) -> list[str]:
-    """Three lines: trace file and frame/time; entity id and name; divergence kinds with their
-    errors (world units) and the first hit of the reference solve."""
+    """Four lines: trace file and frame/time; entity id and name; divergence kinds with their
+    errors (world units) and the first hit of the reference solve; the solver settings."""
     tr = session.trace
     last = tr.frame_count - 1
     lines = [f"{session.name}   frame {state.frame} of 0..{last}   t = {state.time:.3f} s"]
@@ -29,7 +35,7 @@ def caption_lines(session, state, col: int) -> list[str]:
     if not state.active[col]:
         lines.append(who + "   (not active at this frame)")
         lines.append("nothing solved")
-        return lines
+        return lines + [settings_line(session.settings)]
     lines.append(who)
     kinds = state.kinds(col)
     if not kinds:
@@ -44,7 +50,7 @@ def caption_lines(session, state, col: int) -> list[str]:
         k = int(hit[0])
         v = ", ".join(str(int(x)) for x in state.rows.voxel[col, k])
         lines[-1] += f"; reference stops at {session.world.shapes.name(int(state.rows.block[col, k]))} ({v})"
-    return lines
+    return lines + [settings_line(session.settings)]
 
 
 @dataclass(frozen=True)

@@ -15,7 +15,7 @@ import numpy as np  # noqa: E402
 import pyvista as pv  # noqa: E402
 from PIL import Image  # noqa: E402
 
-from resweep.app.scene.caption import band_layout, caption_lines, render_band  # noqa: E402
+from resweep.app.scene.caption import BandLayout, band_layout, caption_lines, render_band  # noqa: E402
 from resweep.app.scene.viewport import Viewport, ViewOptions  # noqa: E402
 
 MIN_VIEW_H = 8  # pixels of 3-D view kept however small the picture
@@ -54,11 +54,27 @@ def render_picture(session, frame, entity_id=None, size=(1280, 720), options=Vie
         legend = vp.legend
     finally:
         plotter.close()
-    band = render_band(lines, W, layout, legend)
+    return compose(view, lines, legend, layout, (W, H))
+
+
+def compose(view: np.ndarray, lines: list[str], legend, layout: BandLayout | None = None,
+            size: tuple[int, int] | None = None) -> np.ndarray:
+    """The picture: ``view`` uint8 (h, w, 3) above a caption band of ``lines`` and ``legend``.
+
+    The one composer of captioned pictures (``resweep snapshot`` and the viewer's Save picture).
+    ``layout`` defaults to a band sized for a picture a third taller than the view; ``size``
+    (W, H) pads or crops the result to exactly that size. Returns uint8 (H, W, 3).
+    """
+    h, w = view.shape[:2]
+    if layout is None:
+        layout = band_layout(w, h + h // 3, lines, legend)
+    band = render_band(lines, w, layout, legend)
+    W, H = size if size is not None else (w, h + layout.height)
+    top = max(0, H - layout.height)  # rows of the picture above the band
     out = np.zeros((H, W, 3), np.uint8)
-    vh = min(view.shape[0], view_h)
-    out[:vh, : min(W, view.shape[1])] = view[:vh, :W]  # guards a window the driver sized otherwise
-    out[view_h:] = band[: H - view_h]
+    vh = min(h, top)
+    out[:vh, : min(W, w)] = view[:vh, :W]  # guards a window the driver sized otherwise
+    out[top:, : min(W, w)] = band[: H - top, :W]
     return out
 
 

@@ -7,29 +7,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from resweep.core.check.kinds import KINDS, SEVERITY, SEVERITY_RANK
+from resweep.core.check.kinds import KINDS, kind_mask, severity_mask
 from resweep.core.check.stream import BlockResult
 
 UNSOLVED = -1
-SEVERITY_NAMES = {0: "none", 1: "info", 2: "warning", 3: "error"}
-
-
-def _masks() -> dict[int, int]:
-    """Flag bits of each severity rank: {3: error bits, 2: warning bits, 1: info bits}."""
-    out = {1: 0, 2: 0, 3: 0}
-    for k, kind in enumerate(KINDS):
-        out[SEVERITY_RANK[SEVERITY[kind]]] |= 1 << k
-    return out
-
-
-_SEVERITY_MASKS = _masks()
-
-
-def kind_mask(kind: str | None) -> int:
-    """Flag bits that count for ``kind`` (None = every kind)."""
-    if kind is None:
-        return (1 << len(KINDS)) - 1
-    return 1 << KINDS.index(kind)
 
 
 def severity_of(flags: np.ndarray) -> np.ndarray:
@@ -37,13 +18,8 @@ def severity_of(flags: np.ndarray) -> np.ndarray:
     flags = np.asarray(flags)
     out = np.zeros(flags.shape, np.int8)
     for rank in (1, 2, 3):  # ascending, so the worst rank present wins
-        out[(flags & _SEVERITY_MASKS[rank]) != 0] = rank
+        out[(flags & severity_mask(rank)) != 0] = rank
     return out
-
-
-def kinds_of(flags: int) -> list[str]:
-    """Kind names whose bit is set in one flags value, in KINDS order."""
-    return [k for i, k in enumerate(KINDS) if int(flags) & (1 << i)]
 
 
 def bin_worst(values: np.ndarray, pixels: int) -> np.ndarray:
@@ -151,7 +127,7 @@ class TraceFlags:
     def counts(self, column: int) -> dict[str, int]:
         """Entity-frames of entity ``column`` flagged with each kind (so far)."""
         f = self.flags[:, column]
-        return {k: int(np.count_nonzero(f & (1 << i))) for i, k in enumerate(KINDS)}
+        return {k: int(np.count_nonzero(f & kind_mask(k))) for k in KINDS}
 
     def diverging_columns(self) -> np.ndarray:
         """bool (N,): entities with at least one divergence so far."""

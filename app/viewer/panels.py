@@ -13,7 +13,7 @@ from PyQt6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QDoubleSpi
                              QLabel, QPushButton, QSpinBox, QTableWidget, QTableWidgetItem, QTextBrowser,
                              QVBoxLayout, QWidget)
 
-from resweep.core.check.kinds import KINDS, SEVERITY, SEVERITY_RANK
+from resweep.core.check.kinds import KINDS, SEVERITY, SEVERITY_RANK, kinds_of, short, worst_rank
 from resweep.core.errors import SettingsError
 from resweep.core.solve.settings import PRECISIONS, SolverSettings
 
@@ -22,8 +22,6 @@ from resweep.app.viewer.report_md import FrameFacts, num
 from resweep.app.viewer.flags import TraceFlags
 from resweep.app.viewer.timeline import SEVERITY_COLOURS
 
-SHORT = {"invalid": "inv", "start_overlap": "ovl", "penetration": "pen", "tunneling": "tun", "snag": "snag",
-         "mismatch": "mis", "discontinuity": "gap"}
 
 
 class EntitiesPanel(QWidget):
@@ -40,7 +38,7 @@ class EntitiesPanel(QWidget):
         self._syncing = False
         self.table = QTableWidget(0, 2 + len(KINDS), self)
         self.table.setObjectName("entities")
-        for c, text in enumerate(["id", "name"] + [SHORT[k] for k in KINDS]):
+        for c, text in enumerate(["id", "name"] + [short(k) for k in KINDS]):
             item = QTableWidgetItem(text)
             if c >= 2:
                 kind = KINDS[c - 2]
@@ -57,7 +55,7 @@ class EntitiesPanel(QWidget):
         fm = self.table.fontMetrics()
         self.table.setColumnWidth(self.ID, 44)
         for c, k in enumerate(KINDS):
-            self.table.setColumnWidth(2 + c, max(34, fm.horizontalAdvance(SHORT[k]) + 16))
+            self.table.setColumnWidth(2 + c, max(34, fm.horizontalAdvance(short(k)) + 16))
         self.table.verticalHeader().setDefaultSectionSize(24)
         self.only_diverging = QCheckBox("diverging only", self)
         self.only_diverging.setToolTip("Hide entities with no divergence (so far)")
@@ -125,8 +123,8 @@ class EntitiesPanel(QWidget):
         (grey italics). flags int32 (N,), active bool (N,)."""
         for r in range(min(self.table.rowCount(), len(flags))):
             it = self.table.item(r, self.NAME)
-            kinds = [k for i, k in enumerate(KINDS) if int(flags[r]) & (1 << i)] if active[r] else []
-            worst = max((SEVERITY_RANK[SEVERITY[k]] for k in kinds), default=0)
+            kinds = kinds_of(flags[r]) if active[r] else []
+            worst = worst_rank(flags[r]) if active[r] else 0
             font = it.font()
             font.setBold(bool(kinds))
             font.setItalic(not active[r])
@@ -141,7 +139,7 @@ class EntitiesPanel(QWidget):
             hide = self.only_diverging.isChecked() and div is not None and not div[r] and r != self.pb.focus
             self.table.setRowHidden(r, bool(hide))
 
-    def _on_current(self, row, col, prow, pcol):
+    def _on_current(self, row, *_):
         if not self._syncing and row >= 0:
             self.pb.set_focus(row)
 
@@ -302,7 +300,4 @@ class SettingsPanel(QWidget):
         self.passes.setValue(s.passes)
         self.precision.setCurrentText(s.precision)
         self._syncing = False
-
-    def set_status(self, text: str):
-        self.message.setText(text)
 

@@ -44,7 +44,6 @@ class Playback:
         self.rate = 1.0
         self.kind: str | None = None
         self._listeners: list = []
-        self._muted = False
 
     # -- listeners -------------------------------------------------------------------------
     def subscribe(self, listener):

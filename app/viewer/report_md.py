@@ -12,7 +12,7 @@ from pathlib import Path
 
 import numpy as np
 
-from resweep.core.check.kinds import KINDS, SEVERITY
+from resweep.core.check.kinds import BY_NAME, SEVERITY
 from resweep.core.solve.settings import STATE_NAMES, SolverSettings
 
 #: Decimals used for every position in the panel and the report (world units).
@@ -28,10 +28,6 @@ def num(v: float, decimals: int = DECIMALS) -> str:
         return "inf" if v > 0 else "-inf"
     text = f"{v:.{decimals}f}"
     return "0." + "0" * decimals if text.lstrip("-") == "0." + "0" * decimals else text  # no "-0.000000"
-
-
-def vec(v, decimals: int = DECIMALS) -> str:
-    return "(" + ", ".join(num(x, decimals) for x in np.asarray(v, np.float64)) + ")"
 
 
 @dataclass
@@ -69,13 +65,6 @@ class FrameFacts:
     vectors: list = field(default_factory=list)
     passes: list = field(default_factory=list)
 
-    @property
-    def difference(self) -> np.ndarray | None:
-        for label, v, _ in self.vectors:
-            if label == "difference":
-                return v
-        return None
-
 
 def frame_facts(session, state, col: int) -> FrameFacts:
     """Gather the facts of entity column ``col`` in ``state`` (a session FrameState)."""
@@ -85,9 +74,8 @@ def frame_facts(session, state, col: int) -> FrameFacts:
                        str(trace.names[col]), bool(state.active[col]), float(trace.voxel_size), session.settings)
     if not facts.active:
         return facts
-    flags = int(rows.flags[col])
-    facts.kinds = [k for i, k in enumerate(KINDS) if flags & (1 << i)]
-    facts.errors = {k: float(rows.error[col, KINDS.index(k)]) for k in facts.kinds}
+    facts.kinds = state.kinds(col)
+    facts.errors = {k: float(rows.error[col, BY_NAME[k].bit]) for k in facts.kinds}
     facts.state = STATE_NAMES.get(int(rows.state[col]), str(int(rows.state[col])))
     rec = np.asarray(state.recorded_end[col], np.float64)
     ref = np.asarray(rows.ref_end[col], np.float64)

@@ -10,7 +10,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from PyQt6.QtCore import QElapsedTimer, QPointF, QRectF, Qt, QTimer, pyqtSignal
+from PyQt6.QtCore import QElapsedTimer, QPointF, QRectF, Qt, QTimer
 from PyQt6.QtGui import QColor, QIcon, QPainter, QPainterPath, QPen, QPixmap, QPolygonF
 from PyQt6.QtWidgets import QComboBox, QHBoxLayout, QLabel, QSizePolicy, QToolButton, QVBoxLayout, QWidget
 
@@ -305,7 +305,10 @@ class TimeStrip(QWidget):
 class Timeline(QWidget):
     """Transport row plus :class:`TimeStrip`; plays at the recorded rate times ``playback.rate``."""
 
-    zoom_changed = pyqtSignal()
+    TIPS = {"first": "First frame (Home)", "prev_div": "Previous divergence (Shift+Left / P)",
+            "step_back": "Step back (Left / ,)", "play": "Play / pause (Space)",
+            "step_fwd": "Step forward (Right / .)", "next_div": "Next divergence (Shift+Right / N)",
+            "last": "Last frame (End)", "zoom_out": "Show the whole trace (double-click the strip)"}
 
     def __init__(self, playback: Playback, parent=None):
         super().__init__(parent)
@@ -317,43 +320,42 @@ class Timeline(QWidget):
         self._timer.timeout.connect(self._tick)
         self._clock = QElapsedTimer()
         self._play_t = 0.0
-        row = QHBoxLayout()
-        row.setContentsMargins(4, 2, 4, 0)
-        row.setSpacing(2)
-        self.buttons: dict[str, QToolButton] = {}
-        tips = {"first": "First frame (Home)", "prev_div": "Previous divergence (Shift+Left / P)",
-                "step_back": "Step back (Left / ,)", "play": "Play / pause (Space)",
-                "step_fwd": "Step forward (Right / .)", "next_div": "Next divergence (Shift+Right / N)",
-                "last": "Last frame (End)"}
-        for name, tip in tips.items():
-            b = QToolButton(self)
-            b.setIcon(draw_icon(name))
-            b.setToolTip(tip)
-            b.setAutoRaise(True)
-            b.setFocusPolicy(Qt.FocusPolicy.NoFocus)
-            row.addWidget(b)
-            self.buttons[name] = b
-        self.rate_box = QComboBox(self)
-        for r in RATES:
-            self.rate_box.addItem(f"×{r:g}", r)
-        self.rate_box.setToolTip("Playback rate, times the recorded rate ([ and ])")
-        self.kind_box = QComboBox(self)
-        self.kind_box.addItem("every kind", None)
-        for k in KINDS:
-            self.kind_box.addItem(k, k)
-        self.kind_box.setToolTip("Divergence kind marked on the strip and used by the jump buttons")
-        for w in (self.rate_box, self.kind_box):
-            w.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        self.buttons = {name: self._tool_button(name) for name in self.TIPS}
+        self.rate_box = self._combo("Playback rate, times the recorded rate ([ and ])",
+                                    [(f"×{r:g}", r) for r in RATES])
+        self.kind_box = self._combo("Divergence kind marked on the strip and used by the jump buttons",
+                                    [("every kind", None)] + [(k, k) for k in KINDS])
         self.position = QLabel("–", self)
         self.position.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         self.position.setMinimumWidth(230)
-        zoom = QToolButton(self)
-        zoom.setIcon(draw_icon("zoom_out"))
-        zoom.setToolTip("Show the whole trace (double-click the strip)")
-        zoom.setAutoRaise(True)
-        zoom.setFocusPolicy(Qt.FocusPolicy.NoFocus)
-        zoom.clicked.connect(self.strip.reset_zoom)
-        self.buttons["zoom_out"] = zoom
+        self._lay_out()
+        self._connect()
+        self.rate_box.setCurrentIndex(RATES.index(1.0))
+
+    def _tool_button(self, name: str) -> QToolButton:
+        b = QToolButton(self)
+        b.setIcon(draw_icon(name))
+        b.setToolTip(self.TIPS[name])
+        b.setAutoRaise(True)
+        b.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        return b
+
+    def _combo(self, tip: str, items) -> QComboBox:
+        box = QComboBox(self)
+        for text, data in items:
+            box.addItem(text, data)
+        box.setToolTip(tip)
+        box.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        return box
+
+    def _lay_out(self):
+        """Transport buttons, rate, kind filter and position in one row above the strip."""
+        row = QHBoxLayout()
+        row.setContentsMargins(4, 2, 4, 0)
+        row.setSpacing(2)
+        for name in self.TIPS:
+            if name != "zoom_out":
+                row.addWidget(self.buttons[name])
         row.addSpacing(8)
         row.addWidget(self.rate_box)
         row.addWidget(QLabel("jump to", self))
@@ -361,12 +363,14 @@ class Timeline(QWidget):
         row.addSpacing(8)
         row.addWidget(self.position)
         row.addStretch(1)
-        row.addWidget(zoom)
+        row.addWidget(self.buttons["zoom_out"])
         lay = QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 2)
         lay.setSpacing(0)
         lay.addLayout(row)
         lay.addWidget(self.strip)
+
+    def _connect(self):
         b = self.buttons
         b["first"].clicked.connect(self.pb.first)
         b["last"].clicked.connect(self.pb.last)
@@ -375,10 +379,10 @@ class Timeline(QWidget):
         b["play"].clicked.connect(self.pb.toggle_play)
         b["next_div"].clicked.connect(lambda: self.jump(+1))
         b["prev_div"].clicked.connect(lambda: self.jump(-1))
+        b["zoom_out"].clicked.connect(self.strip.reset_zoom)
         self.rate_box.currentIndexChanged.connect(lambda i: self.pb.set_rate(self.rate_box.itemData(i)))
         self.kind_box.currentIndexChanged.connect(lambda i: self.pb.set_kind(self.kind_box.itemData(i)))
         self.pb.subscribe(self._on_playback)
-        self.rate_box.setCurrentIndex(RATES.index(1.0))
 
     def set_trace(self, time: np.ndarray, flags: TraceFlags):
         self.flags = flags

@@ -163,8 +163,8 @@ class MainWindow(QMainWindow):
         self.recent_menu = f.addMenu("Open &recent")
         A(f, "Open the &demo trace", self.open_demo, ["Ctrl+D"], "File")
         f.addSeparator()
-        self.act_save = A(f, "&Save picture…", self.save_picture_dialog, ["Ctrl+S"], "File")
-        self.act_copy = A(f, "&Copy report", self.copy_report, ["Ctrl+Shift+C"], "File")
+        A(f, "&Save picture…", self.save_picture_dialog, ["Ctrl+S"], "File")
+        A(f, "&Copy report", self.copy_report, ["Ctrl+Shift+C"], "File")
         f.addSeparator()
         A(f, "&Quit", self.close, ["Ctrl+Q"], "File")
         p = m.addMenu("&Playback")
@@ -411,16 +411,24 @@ class MainWindow(QMainWindow):
 
     # -- picture and report --------------------------------------------------------------------
     def picture(self) -> QImage:
-        """The viewport as it is now with a caption band below: QImage RGB888."""
+        """The viewport as it is now with the caption band below (the same composer as
+        ``resweep snapshot``): QImage RGB888."""
         from resweep.app.scene.caption import caption_lines
+        from resweep.app.scene.picture import compose
         if self.plotter is not None:
-            arr = np.ascontiguousarray(self.plotter.screenshot(return_img=True)[..., :3])
-            h, w = arr.shape[:2]
-            view = QImage(arr.data, w, h, 3 * w, QImage.Format.Format_RGB888).copy()
+            view = np.ascontiguousarray(self.plotter.screenshot(return_img=True)[..., :3])
         else:
-            view = self.centralWidget().grab().toImage().convertToFormat(QImage.Format.Format_RGB888)
-        lines = caption_lines(self.session, self.state, self.pb.focus) if self.state is not None else []
-        return with_caption(view, lines)
+            img = self.centralWidget().grab().toImage().convertToFormat(QImage.Format.Format_RGB888)
+            ptr = img.constBits()
+            ptr.setsize(img.sizeInBytes())
+            rows = np.frombuffer(ptr, np.uint8).reshape(img.height(), img.bytesPerLine())
+            view = np.ascontiguousarray(rows[:, : 3 * img.width()].reshape(img.height(), img.width(), 3))
+        have = self.state is not None and self.pb.focus is not None
+        lines = caption_lines(self.session, self.state, self.pb.focus) if have else []
+        legend = self.viewport.legend if self.viewport is not None else []
+        out = np.ascontiguousarray(compose(view, lines, legend))
+        h, w = out.shape[:2]
+        return QImage(out.data, w, h, 3 * w, QImage.Format.Format_RGB888).copy()
 
     def save_picture(self, path: str) -> bool:
         ok = self.picture().save(str(path), "PNG")
@@ -539,30 +547,6 @@ def dropped_path(mime) -> str | None:
         if url.isLocalFile() and Path(url.toLocalFile()).is_file():
             return url.toLocalFile()
     return None
-
-
-def with_caption(view: QImage, lines: list[str]) -> QImage:
-    """``view`` with a dark band below holding ``lines`` (first line bold): QImage RGB888."""
-    view = view.convertToFormat(QImage.Format.Format_RGB888)
-    w = view.width()
-    line_h = max(14, w // 70)
-    band = (len(lines) * line_h * 3) // 2 + line_h if lines else 0
-    out = QImage(w, view.height() + band, QImage.Format.Format_RGB888)
-    out.fill(PANEL)
-    p = QPainter(out)
-    p.drawImage(0, 0, view)
-    p.fillRect(0, view.height(), w, 3, ACCENT)
-    font = p.font()
-    font.setPixelSize(line_h)
-    y = view.height() + line_h + 6
-    for i, text in enumerate(lines):
-        font.setBold(i == 0)
-        p.setFont(font)
-        p.setPen(INK if i == 0 else QColor("#aab6bf"))
-        p.drawText(line_h, y, text)
-        y += (line_h * 3) // 2
-    p.end()
-    return out
 
 
 class ShortcutsDialog(QDialog):

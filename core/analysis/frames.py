@@ -9,7 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
-from resweep.core.check.kinds import DISCONTINUITY, KINDS, kinds_of
+from resweep.core.check.kinds import BY_NAME, DISCONTINUITY, kinds_of
 from resweep.core.errors import ResweepError
 from resweep.core.check.rows import RowResults, solve_rows
 from resweep.core.format.reader import Trace, open_trace
@@ -51,14 +51,14 @@ class FrameState:
     world_version: int
 
     def kinds(self, col: int) -> list[str]:
-        """Divergence kind names of column ``col`` at this frame, in the order of core KINDS."""
+        """Divergence kind names of column ``col`` at this frame, in bit order."""
         return kinds_of(self.rows.flags[col])
 
     def errors(self, col: int) -> dict[str, float | None]:
         """kind -> error in world units (None where the kind has no error value, e.g. invalid)."""
         out = {}
         for k in self.kinds(col):
-            e = float(self.rows.error[col, KINDS.index(k)])
+            e = float(self.rows.error[col, BY_NAME[k].bit])
             out[k] = e if np.isfinite(e) else None
         return out
 

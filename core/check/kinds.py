@@ -18,7 +18,7 @@ class Kind:
         bit: flag bit in the per-row int32 flags.
         label: a few words for panels, legends and captions.
         meaning: one sentence for help texts and reports.
-        short: two-letter column heading.
+        short: column heading of at most four letters.
     """
 
     name: str
@@ -31,22 +31,22 @@ class Kind:
 
 TABLE: tuple[Kind, ...] = (
     Kind("invalid", "error", 0, "invalid row",
-         "non-finite start, motion or end, or non-positive half extents; the rest is still checked", "iv"),
+         "non-finite start, motion or end, or non-positive half extents; the rest is still checked", "inv"),
     Kind("start_overlap", "warning", 1, "starts inside solid",
-         "the box at frame start overlaps solid deeper than the tolerance (error = depth)", "so"),
+         "the box at frame start overlaps solid deeper than the tolerance (error = depth)", "ovl"),
     Kind("penetration", "error", 2, "ends inside solid",
-         "the recorded end overlaps solid deeper than the tolerance (error = depth)", "pe"),
+         "the recorded end overlaps solid deeper than the tolerance (error = depth)", "pen"),
     Kind("tunneling", "error", 3, "went through solid",
          "the recorded straight path goes through solid the reference stopped at, and the recorded end "
-         "lies beyond it", "tu"),
+         "lies beyond it", "tun"),
     Kind("snag", "warning", 4, "stopped short",
          "the recorded end falls short of the reference along its direction of travel (lost slide, caught "
-         "on a seam or edge; error = shortfall)", "sn"),
+         "on a seam or edge; error = shortfall)", "snag"),
     Kind("mismatch", "warning", 5, "ends elsewhere",
-         "recorded and reference ends differ by more than the tolerance in any other way", "mm"),
+         "recorded and reference ends differ by more than the tolerance in any other way", "mis"),
     Kind("discontinuity", "info", 6, "jumped between frames",
          "the start of frame f+1 differs from the recorded end of frame f (teleport, correction between "
-         "frames)", "dc"),
+         "frames)", "gap"),
 )
 
 #: Kind names in bit order.
@@ -75,6 +75,11 @@ def kinds_of(flags: int) -> list[str]:
 def kind_mask(kind: str | None) -> int:
     """Flag bits that count for ``kind`` (None = every kind)."""
     return ALL_BITS if kind is None else 1 << BY_NAME[kind].bit
+
+
+def short(kind: str) -> str:
+    """Column heading of ``kind``."""
+    return BY_NAME[kind].short
 
 
 def severity_mask(rank: int) -> int:

@@ -6,7 +6,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from resweep.core.check import nb_gather
-from resweep.core.check.kinds import DISCONTINUITY, KINDS, SEVERITY
+from resweep.core.check.kinds import BY_NAME, DISCONTINUITY, KINDS, SEVERITY, kind_mask, kinds_of
 from resweep.core.check.rows import RowResults, solve_rows
 from resweep.core.solve.settings import SolverSettings
 from resweep.core.format.reader import Trace
@@ -167,8 +167,8 @@ def _count(report: TraceReport, flags: np.ndarray):
     nz = flags[flags != 0]
     if not len(nz):
         return
-    for k, kind in enumerate(KINDS):
-        report.counts[kind] += int(np.count_nonzero(nz & (1 << k)))
+    for kind in KINDS:
+        report.counts[kind] += int(np.count_nonzero(nz & kind_mask(kind)))
 
 
 def _collect(report: TraceReport, trace: Trace, rows: RowResults, block_end, fr, cols, f0: int, limit: int):
@@ -177,13 +177,10 @@ def _collect(report: TraceReport, trace: Trace, rows: RowResults, block_end, fr,
     if len(report.divergences) >= limit:
         return
     for i in np.flatnonzero(rows.flags):
-        f = int(rows.flags[i])
-        for k, kind in enumerate(KINDS):
-            if not f & (1 << k):
-                continue
+        for kind in kinds_of(rows.flags[i]):
             if len(report.divergences) >= limit:
                 return
-            err = float(rows.error[i, k])
+            err = float(rows.error[i, BY_NAME[kind].bit])
             report.divergences.append(Divergence(
                 int(f0 + fr[i]), int(trace.ids[cols[i]]), kind, SEVERITY[kind],
                 _finite_list(block_end[fr[i], cols[i]]), _finite_list(rows.ref_end[i]),

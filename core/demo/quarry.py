@@ -85,6 +85,54 @@ def _scripts():
     ]
 
 
+def _scripted_size(a: _Actor, f: int, off) -> np.ndarray:
+    """Half extents of actor ``a`` at frame ``f``; moves the walker when it crouches, stands up or
+    respawns (a respawn is a discontinuity on purpose)."""
+    h = a.half.copy()
+    if a.name == "walker" and 120 <= f < 160:
+        h[1] = 0.6  # crouching
+        if f == 120:
+            a.p[1] -= 0.3
+    if a.name == "walker" and f == 160:
+        a.p[1] += 0.3
+    if a.name == "walker" and f == 200:
+        a.p = np.array([8.5, 4.9 + 2.0, 28.0]) + off  # respawn: a discontinuity
+    return h
+
+
+def _wanted_motion(a: _Actor, f: int, dt: float) -> np.ndarray:
+    """float64 (3,) motion actor ``a`` wants at frame ``f`` (its script, gravity, ground stick)."""
+    cmd = a.script(f, a)
+    if isinstance(cmd[0], str) and cmd[0] == "dash":
+        m = cmd[1].copy()
+    else:
+        if isinstance(cmd[0], str) and cmd[0] == "jump":
+            a.v[1] = cmd[1]
+        else:
+            a.v[0], a.v[2] = cmd
+        a.v[1] -= GRAVITY * dt
+        m = a.v * dt
+        if a.grounded and a.v[1] <= 0:
+            m[1] = -GROUND_STICK
+    if a.name == "hopper" and f == 77:
+        m = np.array([np.nan, 0.0, 0.0])  # an engine bug: a division by zero upstream
+    return m
+
+
+def _engine_frame(world: VoxelWorld, a: _Actor, p, m, h, dtype) -> np.ndarray:
+    """Run the toy engine for actor ``a`` from ``p`` by ``m`` and update its state; returns the end."""
+    if not np.isfinite(m).all():
+        return p
+    q, pushed = push_out_step(world, p, m.astype(dtype), h.astype(dtype), dtype)
+    a.grounded = bool(pushed[1] and m[1] < 0)
+    if pushed[1]:
+        a.v[1] = 0.0
+    if pushed[0] and pushed[2]:
+        a.v[0] = a.v[2] = 0.0  # flawed: a corner push kills the whole slide
+    a.p = q.astype(float)
+    return q
+
+
 def simulate(frames: int = 240, offset=(0, 0, 0), dtype=np.float64):
     """Run the toy engine on the quarry; returns the keyword arguments of :func:`write_trace`.
 
@@ -115,43 +163,11 @@ def simulate(frames: int = 240, offset=(0, 0, 0), dtype=np.float64):
                 active[f, n] = False  # spawned at frame 20
                 start[f, n] = end[f, n] = np.nan  # never read: the row is inactive
                 continue
-            h = a.half.copy()
-            if a.name == "walker" and 120 <= f < 160:
-                h[1] = 0.6  # crouching
-                if f == 120:
-                    a.p[1] -= 0.3
-            if a.name == "walker" and f == 160:
-                a.p[1] += 0.3
-            if a.name == "walker" and f == 200:
-                a.p = np.array([8.5, 4.9 + 2.0, 28.0]) + off  # respawn: a discontinuity
-            cmd = a.script(f, a)
-            m = np.zeros(3)
-            if isinstance(cmd[0], str) and cmd[0] == "dash":
-                m = cmd[1].copy()
-            else:
-                if isinstance(cmd[0], str) and cmd[0] == "jump":
-                    a.v[1] = cmd[1]
-                else:
-                    a.v[0], a.v[2] = cmd
-                a.v[1] -= GRAVITY * dt
-                m = a.v * dt
-                if a.grounded and a.v[1] <= 0:
-                    m[1] = -GROUND_STICK
-            if a.name == "hopper" and f == 77:
-                m = np.array([np.nan, 0.0, 0.0])  # an engine bug: a division by zero upstream
+            h = _scripted_size(a, f, off)
+            m = _wanted_motion(a, f, dt)
             p = a.p.astype(dtype)
             start[f, n], motion[f, n], half[f, n] = p, m.astype(dtype), h.astype(dtype)
-            if not np.isfinite(m).all():
-                end[f, n] = p
-                continue
-            q, pushed = push_out_step(world, p, m.astype(dtype), h.astype(dtype), dtype)
-            end[f, n] = q
-            a.grounded = bool(pushed[1] and m[1] < 0)
-            if pushed[1]:
-                a.v[1] = 0.0
-            if pushed[0] and pushed[2]:
-                a.v[0] = a.v[2] = 0.0  # flawed: a corner push kills the whole slide
-            a.p = q.astype(float)
+            end[f, n] = _engine_frame(world, a, p, m, h, dtype)
     ids = np.array([a.id for a in actors], np.int64)
     return dict(chunk_size=16, chunk_origin=origin, chunk_blocks=blocks.astype(np.uint8), shapes=SHAPES,
                 edits=edits, entity_ids=ids, entity_names=[a.name for a in actors],

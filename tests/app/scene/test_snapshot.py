@@ -223,7 +223,8 @@ def expected_lines(report, frame, eid):
     hit = ds[0].passes[0]["voxel"] if ds and ds[0].passes and ds[0].passes[0]["voxel"] else None
     if hit:
         line3 += f"; reference stops at plank wall ({hit[0]}, {hit[1]}, {hit[2]})"
-    return [f"quarry.h5   frame {frame} of 0..239   t = {frame / 60:.3f} s", "entity 102 dasher", line3]
+    settings = "reference: sweep and slide, 3 passes, skin 0.001, tolerance 0.01 voxels, float64"  # the defaults
+    return [f"quarry.h5   frame {frame} of 0..239   t = {frame / 60:.3f} s", "entity 102 dasher", line3, settings]
 
 
 def test_caption_lines_say_file_frame_time_entity_kind_and_error(session, report):

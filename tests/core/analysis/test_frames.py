@@ -5,7 +5,6 @@ discontinuity test across frame blocks): a second, independent path to the same 
 """
 from __future__ import annotations
 
-from pathlib import Path
 
 import numpy as np
 import pytest

@@ -1,7 +1,6 @@
 """The bundled demo traces are up to date with their generator and show what they are for."""
 from __future__ import annotations
 
-from pathlib import Path
 
 import h5py
 import numpy as np

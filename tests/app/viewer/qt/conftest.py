@@ -4,7 +4,6 @@ pytest-xvfb starts a virtual X server for the session; VTK draws into it through
 """
 from __future__ import annotations
 
-from pathlib import Path
 
 import numpy as np
 import pytest
