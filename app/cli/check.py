@@ -101,14 +101,24 @@ def run(args) -> int:
         numba.set_num_threads(args.threads)
     show_progress = not args.quiet and sys.stderr.isatty()
     json_to_stdout = args.json == "-"
-    warmed = set()
-    reports, status = [], EXIT_OK
-    # Isolated first open of every trace (one child at a time, in the background) while this
-    # process loads the solver kernels: the validation's start-up hides behind the kernels'.
+    # Isolated first open of every trace (one child at a time) while another thread loads the
+    # solver kernels: the validation's start-up hides behind the kernels'. The compile notice
+    # (first run only) is printed later, for a trace that passed, so a refused file still gives
+    # exactly one line; the loader is joined before returning (never left compiling at exit).
     pool = ThreadPoolExecutor(1, thread_name_prefix="resweep-vet")
     vetted = [pool.submit(vet, path) for path in args.traces]
     pool.shutdown(wait=False)
-    compile_notice(settings.precision, quiet=args.quiet)
+    loader = ThreadPoolExecutor(1, thread_name_prefix="resweep-warm")
+    loader.submit(warm_up, settings.precision)  # errors resurface in compile_notice below
+    try:
+        return _check_all(args, settings, fail_on, vetted, show_progress, json_to_stdout)
+    finally:
+        loader.shutdown(wait=True)
+
+
+def _check_all(args, settings, fail_on, vetted, show_progress, json_to_stdout) -> int:
+    warmed = set()
+    reports, status = [], EXIT_OK
     for path, verdict in zip(args.traces, vetted):
         try:
             verdict.result()  # a file that hangs or crashes HDF5 stops here, never opened in this process
