@@ -5,6 +5,30 @@ problem; nothing in the core prints or exits.
 """
 from __future__ import annotations
 
+#: Longest text taken from a file that a message shows (longer text is cut, marked with "...").
+MAX_SHOWN = 200
+
+
+def printable(text, limit: int = MAX_SHOWN) -> str:
+    """``text`` safe for a one-line message, a dialog or a report.
+
+    Strings read from an untrusted file (link targets, attribute values, names, HDF5's own error
+    text quoting them) may hold newlines, terminal escapes or megabytes. Control characters
+    (C0, DEL, C1, and the Unicode line/paragraph separators) become backslash escapes and the
+    result is cut to about ``limit`` characters.
+    """
+    s = str(text)
+    cut = len(s) > limit
+    s = s[:limit]
+    out = []
+    for ch in s:
+        o = ord(ch)
+        if o < 0x20 or 0x7F <= o < 0xA0 or o in (0x2028, 0x2029, 0x85):
+            out.append({"\n": "\\n", "\r": "\\r", "\t": "\\t"}.get(ch, f"\\x{o:02x}" if o < 0x100 else f"\\u{o:04x}"))
+        else:
+            out.append(ch)
+    return "".join(out) + ("..." if cut else "")
+
 
 class ResweepError(Exception):
     """Base class for every error the core raises on purpose."""
@@ -26,8 +50,11 @@ class TraceFormatError(ResweepError):
         super().__init__(self.one_line())
 
     def one_line(self) -> str:
-        where = f"{self.path}: {self.dataset}" if self.dataset else self.path
-        return f"{where}: {self.reason}"
+        """``path: dataset: reason`` on one line; the parts from the file are escaped and cut."""
+        where = printable(self.path, 4 * MAX_SHOWN)
+        if self.dataset:
+            where += ": " + printable(self.dataset)
+        return f"{where}: {printable(self.reason, 3 * MAX_SHOWN)}"
 
 
 class SettingsError(ResweepError):

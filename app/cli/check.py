@@ -11,6 +11,7 @@ from resweep.core.check.stream import check_trace
 from resweep.core.errors import TraceFormatError
 from resweep.core.check.rows import warm_up
 from resweep.core.format.reader import open_trace
+from resweep.core.format.vet import vet
 
 from resweep.app.cli.solver_args import settings_from
 from resweep.app.cli.exits import EXIT_DIVERGED, EXIT_OK, EXIT_USAGE
@@ -139,6 +140,17 @@ def open_all(paths) -> list[str]:
     return bad
 
 
+def vet_all(paths) -> list[str]:
+    """One line per trace the isolated validator refuses (``core/format/vet.py``), in order."""
+    bad = []
+    for path in paths:
+        try:
+            vet(path)
+        except TraceFormatError as exc:
+            bad.append(exc.one_line())
+    return bad
+
+
 def run(args) -> int:
     from resweep.app.cli import farm
     if farm.wanted(args):  # folders, globs or farm options: many traces on a pool or a cluster
@@ -156,7 +168,8 @@ def run(args) -> int:
     if getattr(args, "follow", False):
         from resweep.app.cli.check_follow import run_follow
         return run_follow(args, settings, fail_on, print_summary, compile_notice)
-    bad = open_all(args.traces)
+    bad = vet_all(args.traces)  # isolated first open of every trace, then a normal open
+    bad = bad or open_all(args.traces)
     if bad:
         for line in bad:
             sys.stderr.write(f"resweep check: {line}\n")

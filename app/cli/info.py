@@ -5,6 +5,7 @@ import sys
 
 from resweep.core.analysis.describe import describe
 from resweep.core.format.reader import open_trace
+from resweep.core.format.vet import vet
 
 from resweep.app.cli.exits import EXIT_OK, EXIT_USAGE
 from resweep.app.cli.output import Stdout, emit_json, output_problem
@@ -16,6 +17,7 @@ def run(args) -> int:
         if problem:
             sys.stderr.write(f"resweep info: {problem}\n")
             return EXIT_USAGE
+    vet(args.trace)  # isolated first open
     with open_trace(args.trace) as trace:
         info = describe(trace)
     if args.json:

@@ -92,6 +92,12 @@ def farm_opts(c):
                    help="kernel cache folder for the workers (default: each worker's own)")
 
 
+def _limits_opt(sp):
+    sp.add_argument("--max", action="append", default=[], metavar="NAME=N",
+                    help="raise a size limit for hostile-file protection, e.g. --max voxels=500000000 "
+                         "(limits: see the trace format reference)")
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="resweep", description="Re-solve recorded voxel collision traces with a reference "
                 "swept-AABB solver and report where the recorded run diverged.")
@@ -102,6 +108,7 @@ def build_parser() -> argparse.ArgumentParser:
                                    "0 no failing divergence, 1 failing divergence found, 2 usage error or bad "
                                    "trace, 3 internal error, 130 interrupted.")
     c.add_argument("traces", nargs="+", metavar="TRACE")
+    _limits_opt(c)
     solver_opts(c)
     c.add_argument("--fail-on", type=_fail_on_arg, default=None, metavar="KIND|SEVERITY,...",
                    help="kinds, or severities (= every kind of that severity or worse), that make the exit "
@@ -119,6 +126,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     i = sub.add_parser("info", help="describe a trace and list validation problems")
     i.add_argument("trace", metavar="TRACE")
+    _limits_opt(i)
     i.add_argument("--json", metavar="-", help="write JSON to stdout ('-') or to a file")
 
     v = sub.add_parser("view", help="open the desktop viewer")
@@ -128,9 +136,11 @@ def build_parser() -> argparse.ArgumentParser:
     solver_opts(v, remembered=True)
     v.add_argument("--follow", action="store_true",
                    help="pick up frames a recorder keeps flushing to TRACE (View > Follow recording)")
+    _limits_opt(v)
 
     s = sub.add_parser("snapshot", help="render the viewer picture off screen to a PNG or JPEG")
     s.add_argument("trace", metavar="TRACE")
+    _limits_opt(s)
     which = s.add_mutually_exclusive_group(required=True)
     which.add_argument("--frame", type=_positive_int, metavar="N")
     which.add_argument("--frames", type=_frame_range, metavar="A:B",
@@ -169,6 +179,11 @@ def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     from resweep.core.errors import ResweepError
+    from resweep.core.format.limits import raise_limits
+    try:
+        raise_limits(",".join(args.max))  # also read by the isolated validator and the viewer
+    except ValueError as exc:
+        parser.error(f"--max: {exc}")
     try:
         # One module per command, imported only when used (a check never loads the viewer).
         command = importlib.import_module(f"resweep.app.cli.{_MODULES.get(args.command, args.command)}")
@@ -187,7 +202,8 @@ def main(argv=None) -> int:
     except Exception as exc:  # the boundary: one line, never a traceback (unless debugging)
         if os.environ.get("RESWEEP_DEBUG"):
             raise
-        sys.stderr.write(f"resweep {args.command}: internal error: {type(exc).__name__}: {exc} "
+        from resweep.core.errors import printable
+        sys.stderr.write(f"resweep {args.command}: internal error: {type(exc).__name__}: {printable(exc)} "
                          "(set RESWEEP_DEBUG=1 for a traceback)\n")
         return EXIT_INTERNAL
 

@@ -29,6 +29,8 @@ def run(args) -> int:
     if problem:
         sys.stderr.write(f"resweep snapshot: {problem}\n")
         return EXIT_USAGE
+    from resweep.core.format.vet import vet
+    vet(args.trace)  # isolated first open
     settings = settings_from(args)
     first, last = args.frames if args.frames is not None else (args.frame, args.frame)
     with TraceSession(args.trace, settings) as session:

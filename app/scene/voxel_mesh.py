@@ -152,7 +152,10 @@ def chunk_faces(types: np.ndarray, origin, tables: ShapeTables, rgb_table: np.nd
     """
     origin = np.asarray(origin, np.int64)
     T = len(tables.is_cube)
-    t_all = np.minimum(types.astype(np.int64), T - 1)
+    if not types[1:-1, 1:-1, 1:-1].any():
+        return empty_faces()  # all air (also the chunks a trace makes for far edits)
+    # Stay in the stored 2-byte type (an int64 copy of a padded chunk costs 4x its memory).
+    t_all = np.minimum(types, np.uint16(min(T - 1, 65535)))
     inner = t_all[1:-1, 1:-1, 1:-1]
     cube = tables.is_cube[inner] & (inner != 0)
     vox, lo, hi, dd = [], [], [], []

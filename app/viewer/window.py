@@ -27,7 +27,7 @@ from resweep.app.viewer.flags import TraceFlags
 from resweep.app.viewer.hunt import HuntTools
 from resweep.app.viewer.follow import RecordingFollower
 from resweep.app.viewer.timeline import ACCENT, GROOVE, INK, PANEL, Timeline, draw_icon
-from resweep.app.viewer.worker import TraceWorker, error_line
+from resweep.app.viewer.worker import TraceWorker, error_line, off_thread, wait_for
 from resweep.sample_traces import demo_path
 
 ORG, APP = "resweep", "resweep view"
@@ -59,6 +59,10 @@ class MainWindow(QMainWindow):
         self._pending: dict = {}
         self._solved_upto = 0
         self._camera = "story"
+        self._refreshing = False  # a frame is being solved off the GUI thread (see refresh_view)
+        self._refresh_again = False
+        self._frame_cancel = False
+        self._frame_thread = None
         self.plotter = None
         self.viewport = None
         self.view_options = None
@@ -218,7 +222,7 @@ class MainWindow(QMainWindow):
         """Open ``path`` in the background; the current trace stays until the new one is ready."""
         self._pending = {"frame": frame, "entity": entity_id}
         self.status(f"opening {path} …")
-        self.worker.load(str(path), self.pb.settings)
+        self.worker.load(str(path), self.pb.settings, frame or 0)
 
     def open_dialog(self):
         start = self.store.value("dialog/dir", str(Path.home()))
@@ -313,6 +317,7 @@ class MainWindow(QMainWindow):
         self.cancel_button.setVisible(busy)
 
     def cancel_background(self):
+        self._frame_cancel = True
         if self.worker.is_busy():
             self.worker.cancel()
             self.entities.refresh_counts()
@@ -332,12 +337,50 @@ class MainWindow(QMainWindow):
             self.set_camera(self._camera)
 
     def refresh_view(self):
-        """Solve the current frame (the session caches) and show it everywhere."""
+        """Solve the current frame (the session caches) and show it everywhere.
+
+        The solve runs on a worker thread while the event loop keeps running, so a slow frame
+        never freezes the window; frames asked for meanwhile (keys, playback) are shown next,
+        and Cancel (Esc) stops waiting and keeps the picture on screen.
+        """
         if self.session is None or not self.pb.frame_count:
             return
+        if self._refreshing:
+            self._refresh_again = True
+            return
+        self._refreshing = True
+        try:
+            self._refresh_again = True
+            while self._refresh_again and self.session is not None:
+                self._refresh_again = False
+                self._refresh_once()
+        finally:
+            self._refreshing = False
+
+    def _frame_state(self, session, frame: int):
+        """``session.frame_state(frame)``, solved off the GUI thread unless cached; None when
+        cancelled or superseded (another frame asked for, another trace opened)."""
+        if session.has_frame(frame):
+            return session.frame_state(frame)
+        self._frame_cancel = False
+        stop = lambda: self._frame_cancel or self.session is not session or self._refresh_again  # noqa: E731
+        if not wait_for(self._frame_thread, stop):  # one solve at a time on a session
+            return None
+        self.status(f"solving frame {frame} …")
+        self.cancel_button.setVisible(True)
+        try:
+            self._frame_thread, state = off_thread(lambda: session.frame_state(frame), stop)
+        finally:
+            self.cancel_button.setVisible(self.worker.is_busy())
+        return state
+
+    def _refresh_once(self):
         col = self.pb.focus
         try:
-            self.state = self.session.frame_state(self.pb.frame)
+            state = self._frame_state(self.session, self.pb.frame)
+            if state is None or self.session is None:
+                return
+            self.state = state
             if self.viewport is not None and col is not None:
                 self.viewport.show(self.state, col, self.view_options)
             facts = frame_facts(self.session, self.state, col) if col is not None else None
@@ -512,7 +555,10 @@ class MainWindow(QMainWindow):
 
     def closeEvent(self, event):
         self.pb.set_playing(False)
+        self._frame_cancel = True
         self.worker.shutdown()
+        if self._frame_thread is not None:
+            self._frame_thread.join(10)
         self.store.setValue("window/geometry", self.saveGeometry())
         self.store.setValue("window/state", self.saveState())
         self.store.sync()

@@ -9,10 +9,11 @@ from __future__ import annotations
 
 import threading
 
-from PyQt6.QtCore import QObject, pyqtSignal, pyqtSlot
+from PyQt6.QtCore import QCoreApplication, QEventLoop, QObject, pyqtSignal, pyqtSlot
 
 from resweep.core.check.stream import check_trace
-from resweep.core.errors import ResweepError
+from resweep.core.errors import ResweepError, printable
+from resweep.core.format.vet import vet
 from resweep.core.solve.settings import SolverSettings
 from resweep.core.format.reader import open_trace
 
@@ -21,10 +22,45 @@ ROWS_PER_BLOCK = 1 << 15
 
 
 def error_line(exc: BaseException) -> str:
-    """One line for the user: the core's own line for its typed errors, else type and message."""
+    """One line for the user: the core's own line for its typed errors, else type and message
+    (escaped and cut: messages can quote text from the file)."""
     if isinstance(exc, ResweepError):
-        return str(exc)
-    return f"{type(exc).__name__}: {exc}"
+        return printable(str(exc), 1000)
+    return f"{type(exc).__name__}: {printable(exc)}"
+
+
+def off_thread(fn, cancelled, poll_ms: int = 15):
+    """Run ``fn()`` on a worker thread while the Qt event loop keeps running (the window stays
+    responsive); returns ``(thread, value)``, or ``(thread, None)`` as soon as ``cancelled()``
+    is true (the thread then finishes on its own; its result is dropped). Re-raises ``fn``'s error.
+    """
+    box = {}
+
+    def run():
+        try:
+            box["value"] = fn()
+        except BaseException as exc:  # handed to the GUI thread below
+            box["error"] = exc
+    t = threading.Thread(target=run, daemon=True, name="resweep-frame")
+    t.start()
+    while t.is_alive():
+        if cancelled():
+            return t, None
+        QCoreApplication.processEvents(QEventLoop.ProcessEventsFlag.AllEvents, poll_ms)
+        t.join(0.002)
+    if "error" in box:
+        raise box["error"]
+    return t, box.get("value")
+
+
+def wait_for(thread, cancelled, poll_ms: int = 15) -> bool:
+    """Keep the event loop running until ``thread`` ends (True) or ``cancelled()`` (False)."""
+    while thread is not None and thread.is_alive():
+        if cancelled():
+            return False
+        QCoreApplication.processEvents(QEventLoop.ProcessEventsFlag.AllEvents, poll_ms)
+        thread.join(0.002)
+    return True
 
 
 class _Job:
@@ -96,13 +132,14 @@ class TraceWorker(QObject):
         if not was_busy:
             self.busy.emit(True)
 
-    def load(self, path: str, settings: SolverSettings) -> int:
-        """Open ``path`` in the background; cancels a load in progress. A running solve goes on
-        (the current trace stays on screen if the new one fails to open)."""
+    def load(self, path: str, settings: SolverSettings, frame: int = 0) -> int:
+        """Open ``path`` in the background (isolated validation first, then the trace, then the
+        solve of ``frame``, clamped to the trace); cancels a load in progress. A running solve goes
+        on (the current trace stays on screen if the new one fails to open)."""
         self._cancel_job(self._load)
         self._load = None
         job = self._new_job("load")
-        self._start(job, self._run_load, str(path), settings)
+        self._start(job, self._run_load, str(path), settings, int(frame or 0))
         return job.number
 
     def solve(self, path: str, settings: SolverSettings) -> int:
@@ -147,13 +184,23 @@ class TraceWorker(QObject):
         return self._load is not None
 
     # -- thread bodies (no Qt objects touched here except emitting signals) --------------------
-    def _run_load(self, job: _Job, path: str, settings: SolverSettings):
+    def _run_load(self, job: _Job, path: str, settings: SolverSettings, frame: int = 0):
+        session = None
         try:
-            session = self._factory(path, settings)
+            vet(path)  # isolated first open: a file that hangs or crashes HDF5 stops here
+            if not job.stop.is_set():
+                session = self._factory(path, settings)
+            if session is not None and not job.stop.is_set() and hasattr(session, "frame_state") \
+                    and session.trace.frame_count:
+                session.frame_state(min(frame, session.trace.frame_count - 1))  # cached for the window
         except Exception as exc:  # the GUI boundary: every failure becomes one line in a dialog
+            if session is not None:
+                session.close()
             self._t_load_failed.emit(job.number, path, error_line(exc))
         else:
-            if job.stop.is_set():
+            if session is None:
+                pass
+            elif job.stop.is_set():
                 session.close()
             else:
                 self._t_loaded.emit(job.number, session, path)

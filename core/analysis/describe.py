@@ -7,11 +7,27 @@ from resweep.core.check.validity import reason, valid_rows
 from resweep.core.format.reader import Trace
 
 
+def block_counts(blocks: np.ndarray, step: int = 1 << 20) -> np.ndarray:
+    """Voxels per block type of ``blocks`` (uint8/uint16, any shape): int64 (max type + 1,).
+
+    Counted in slices of ``step`` voxels, so the temporary index array stays small however big
+    the world is (np.bincount converts its whole input to intp first).
+    """
+    flat = blocks.reshape(-1)
+    counts = np.zeros(1, np.int64)
+    for a in range(0, flat.size, step):
+        part = np.bincount(flat[a:a + step])
+        if len(part) > len(counts):
+            counts = np.concatenate([counts, np.zeros(len(part) - len(counts), np.int64)])
+        counts[:len(part)] += part
+    return counts
+
+
 def describe(trace: Trace, max_problems: int = 20) -> dict:
     """JSON-ready facts about ``trace``; scans every frame block for invalid active rows (judged
     in the file's float type; ``check --precision float32`` may find more, e.g. 1e300)."""
     bounds = trace.world_bounds()
-    counts = np.bincount(trace.chunk_blocks.reshape(-1), minlength=1) if trace.chunk_blocks.size else np.zeros(1, int)
+    counts = block_counts(trace.chunk_blocks)
     used = [int(t) for t in np.flatnonzero(counts)]
     shown_types = sorted(set(used) | set(range(min(trace.shapes.count, 64))))
     types = [{"type": t, "name": trace.shapes.name(t), "boxes": int(len(trace.shapes.boxes_of(t)))

@@ -104,6 +104,10 @@ class TraceSession:
             raise ViewRequestError(self.path, f"entity id {entity_id} is not in the trace (ids: {ids}{more})")
         return col
 
+    def has_frame(self, frame: int) -> bool:
+        """Whether :meth:`frame_state` of ``frame`` is cached (costs no solve)."""
+        return int(frame) in self._cache
+
     def frame_state(self, frame: int) -> FrameState:
         """Read, advance the world to, and re-solve ``frame`` (cached, least recently used out)."""
         frame = self.check_frame(frame)

@@ -12,7 +12,7 @@ import os
 import h5py
 import numpy as np
 
-from resweep.core.errors import TraceFormatError
+from resweep.core.errors import TraceFormatError, printable
 
 #: Filters that ship with h5py (HDF5 filter ids): deflate/gzip, shuffle, fletcher32, lzf.
 ALLOWED_FILTERS = {1: "gzip", 2: "shuffle", 3: "fletcher32", 32000: "lzf"}
@@ -22,6 +22,12 @@ SLACK_BYTES = 1 << 20
 #: Hard cap for a dataset read whole (world, entity tables), whatever the file size.
 MAX_WHOLE_READ = 8 << 30
 _MAX_LINK_HOPS = 16
+#: What h5py raises on a corrupt or hostile file: HDF5's error stack maps to OSError, KeyError,
+#: ValueError or RuntimeError (e.g. a damaged symbol-table node in a link or attribute lookup),
+#: and a damaged header can surface as TypeError, IndexError or a decoding error. Every h5py call
+#: on an untrusted file goes through one of these handlers, so each becomes one line naming the file.
+H5_FAILURES = (OSError, KeyError, ValueError, TypeError, RuntimeError, IndexError, AttributeError,
+               OverflowError, SystemError, UnicodeError)
 
 
 class SafeFile:
@@ -41,14 +47,14 @@ class SafeFile:
             raise TraceFormatError(path, None, "empty file (0 bytes), not an HDF5 trace")
         try:
             is_h5 = h5py.is_hdf5(self.path)
-        except OSError as exc:
+        except H5_FAILURES as exc:
             raise TraceFormatError(path, None, f"cannot open: {exc}") from None
         if not is_h5:
             raise TraceFormatError(path, None, "not an HDF5 file (no HDF5 signature)")
         self.swmr = bool(swmr)
         try:
             self.file = h5py.File(self.path, "r", locking=False, swmr=self.swmr)
-        except OSError as exc:
+        except H5_FAILURES as exc:
             if self.swmr:
                 raise TraceFormatError(path, None, f"cannot open as HDF5 (truncated or corrupt?): {exc}") from None
             # A recorder holds the file in SWMR mode or was killed holding it ("already open for
@@ -56,7 +62,7 @@ class SafeFile:
             self.swmr = True
             try:
                 self.file = h5py.File(self.path, "r", locking=False, swmr=True)
-            except (OSError, RuntimeError, ValueError):  # the first error says what is wrong
+            except H5_FAILURES:  # the first error says what is wrong
                 raise TraceFormatError(path, None, f"cannot open as HDF5 (truncated or corrupt?): {exc}") from None
         # HDF5 shares one open file per process: a file this process already reads in SWMR mode
         # opens in that mode again, with the older metadata that SWMR refreshes must update.
@@ -82,7 +88,7 @@ class SafeFile:
             walked += "/" + part
             try:
                 link = node.get(part, getlink=True)
-            except (OSError, KeyError, ValueError) as exc:
+            except H5_FAILURES as exc:
                 raise self.fail(walked, f"cannot read link: {exc}") from None
             if link is None:
                 return None
@@ -98,7 +104,7 @@ class SafeFile:
                 return resolved
             try:
                 node = node[part]
-            except (OSError, KeyError, ValueError) as exc:
+            except H5_FAILURES as exc:
                 raise self.fail(walked, f"cannot open object (truncated or corrupt?): {exc}") from None
         return node
 
@@ -139,7 +145,7 @@ class SafeFile:
             itemsize = node.dtype.itemsize
         except TraceFormatError:
             raise
-        except (OSError, ValueError, TypeError) as exc:
+        except H5_FAILURES as exc:
             raise self.fail(name, f"cannot read dataset header (truncated or corrupt?): {exc}") from None
         if shape is None:
             raise self.fail(name, "has no data (null dataspace)")
@@ -157,22 +163,25 @@ class SafeFile:
         """``ds[sel]`` with read failures turned into one-line errors."""
         try:
             return ds[sel]
-        except (OSError, ValueError, TypeError, RuntimeError) as exc:
+        except H5_FAILURES as exc:
             raise self.fail(ds.name, f"cannot read data (truncated or corrupt?): {exc}") from None
 
     def read_strings(self, ds) -> tuple[str, ...]:
-        if h5py.check_string_dtype(ds.dtype) is None:
-            raise self.fail(ds.name, f"must hold strings, found dtype {ds.dtype}")
+        """The strings of ``ds``, each escaped and cut by :func:`printable` (they reach reports)."""
         try:
+            if h5py.check_string_dtype(ds.dtype) is None:
+                raise self.fail(ds.name, f"must hold strings, found dtype {ds.dtype}")
             vals = ds.asstr(errors="replace")[()]
-        except (OSError, ValueError, TypeError, RuntimeError) as exc:
+        except TraceFormatError:
+            raise
+        except H5_FAILURES as exc:
             raise self.fail(ds.name, f"cannot read strings: {exc}") from None
-        return tuple(str(v) for v in np.atleast_1d(vals))
+        return tuple(printable(v) for v in np.atleast_1d(vals))
 
     def attr(self, obj, key, default=None):
         try:
             if key not in obj.attrs:
                 return default
             return obj.attrs[key]
-        except (OSError, ValueError, TypeError, KeyError) as exc:
+        except H5_FAILURES as exc:
             raise self.fail(f"{obj.name}@{key}", f"cannot read attribute: {exc}") from None

@@ -10,8 +10,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from resweep.core.errors import TraceFormatError, printable
 from resweep.core.format.datasets import FRAME_VECTORS, DatasetSpec, spec
-from resweep.core.format.h5safe import SafeFile
+from resweep.core.format.h5safe import H5_FAILURES, SafeFile
+from resweep.core.format.limits import Limits, current
 from resweep.core.world.shapes import IMPLICIT_TYPES, BlockShapes, unit_cube_shapes
 from resweep.core.world.voxel_world import VoxelWorld
 
@@ -61,12 +63,18 @@ class Trace:
             or still recording); it is read up to the last flush.
     """
 
-    def __init__(self, path, swmr: bool = False):
+    def __init__(self, path, swmr: bool = False, limits: Limits | None = None):
+        self.limits = current() if limits is None else limits
         self._f = SafeFile(path, swmr=swmr)
         self.path = self._f.path
         try:
             self._load()
-        except Exception:
+        except H5_FAILURES as exc:
+            # A corrupt header can fail in an h5py property read outside SafeFile's calls.
+            self._f.close()
+            raise TraceFormatError(self.path, None, f"cannot read (truncated or corrupt?): "
+                                                    f"{type(exc).__name__}: {exc}") from None
+        except BaseException:
             self._f.close()
             raise
 
@@ -95,13 +103,12 @@ class Trace:
         if up not in UP_AXES:
             raise f.fail("/", f"root attribute 'up_axis' must be one of x, y, z, found {up!r}")
         self.up_axis = up
-        self.title = _as_str(f.attr(root, "title", "")) or ""
-        self.producer = _as_str(f.attr(root, "producer", "")) or ""
+        self.title = printable(_as_str(f.attr(root, "title", "")) or "")
+        self.producer = printable(_as_str(f.attr(root, "producer", "")) or "")
         self.problems: list[str] = []
         self._load_commit()
         self._load_blocks()
         self._load_world()
-        self._load_edits()
         self._load_entities()
         self._load_frames()
 
@@ -182,14 +189,18 @@ class Trace:
         S = f.attr(g, "chunk_size")
         if S is None:
             raise f.fail("/world", "attribute 'chunk_size' is missing")
-        if not _is_int(S) or int(S) < 1 or int(S) > 1024:
-            raise f.fail("/world", f"attribute 'chunk_size' must be an integer in 1..1024, found {S!r}")
+        lim = self.limits
+        if not _is_int(S) or int(S) < 1:
+            raise f.fail("/world", f"attribute 'chunk_size' must be an integer >= 1, found {S!r}")
         S = int(S)
+        if S > lim.chunk_size:
+            raise f.fail("/world", f"chunk_size {S} is {lim.hint('chunk_size')}")
         od = f.dataset("/world/chunk_origin")
         _check(f, od, spec("/world/chunk_origin"), {})
-        bd = f.dataset("/world/chunk_blocks")
+        bd = f.dataset("/world/chunk_blocks", whole=False)
         C = od.shape[0]
         _check(f, bd, spec("/world/chunk_blocks"), {"C": C, "S": S}, " to match chunk_origin and chunk_size")
+        _world_size(f, lim, C, 0, S)
         origin = f.read(od).astype(np.int64)
         if (np.abs(origin) > MAX_COORD).any():
             raise f.fail(od.name, f"coordinates beyond +-{MAX_COORD} voxels are refused")
@@ -198,6 +209,8 @@ class Trace:
             raise f.fail(od.name, f"row {bad} {origin[bad].tolist()} is not a multiple of chunk_size {S}")
         if len(np.unique(origin, axis=0)) != C:
             raise f.fail(od.name, "holds duplicate chunk origins")
+        ed = f.dataset("/world/edits", required=False)
+        edits = self._read_edits(ed, origin, S) if ed is not None else np.zeros((0, 5), np.int64)
         blocks = f.read(bd)
         if C and self.type_count < IMPLICIT_TYPES and int(blocks.max()) >= self.type_count:
             raise f.fail(bd.name, f"holds block type {int(blocks.max())}, but /blocks defines only "
@@ -205,24 +218,27 @@ class Trace:
         self.chunk_size = S
         self.chunk_origin = origin
         self.chunk_blocks = blocks
-
-    def _load_edits(self):
-        f = self._f
-        ed = f.dataset("/world/edits", required=False)
-        if ed is not None:
-            _check(f, ed, spec("/world/edits"), {})
-            if self.committed is not None:
-                self._prefix(ed, {0: int(self.committed[2])}, "/frames/committed")
-                edits = f.read(ed, np.s_[:int(self.committed[2])]).astype(np.int64)
-            else:
-                edits = f.read(ed).astype(np.int64)
-            if (np.abs(edits[:, 1:4]) > MAX_COORD).any():
-                raise f.fail(ed.name, f"voxel coordinates beyond +-{MAX_COORD} are refused")
-            if len(edits) and (edits[:, 4].min() < 0 or edits[:, 4].max() >= self.type_count):
-                raise f.fail(ed.name, f"block types must lie in 0..{self.type_count - 1}")
-        else:
-            edits = np.zeros((0, 5), np.int64)
         self.edits = edits
+
+    def _read_edits(self, ed, origin, S):
+        """The edits, after the edit-count limit and the world-size limit counting the chunks
+        that edits outside the recorded ones add (the world makes an all-air chunk for each)."""
+        f = self._f
+        _check(f, ed, spec("/world/edits"), {})
+        if ed.shape[0] > self.limits.edits:
+            raise f.fail(ed.name, f"{ed.shape[0]:,} edits are {self.limits.hint('edits')}")
+        if self.committed is not None:
+            self._prefix(ed, {0: int(self.committed[2])}, "/frames/committed")
+            edits = f.read(ed, np.s_[:int(self.committed[2])]).astype(np.int64)
+        else:
+            edits = f.read(ed).astype(np.int64)
+        if (np.abs(edits[:, 1:4]) > MAX_COORD).any():
+            raise f.fail(ed.name, f"voxel coordinates beyond +-{MAX_COORD} are refused")
+        if len(edits) and (edits[:, 4].min() < 0 or edits[:, 4].max() >= self.type_count):
+            raise f.fail(ed.name, f"block types must lie in 0..{self.type_count - 1}")
+        extra = count_extra_chunks(origin, edits, S)
+        _world_size(f, self.limits, len(origin), extra, S)
+        return edits
 
     def _load_entities(self):
         f = self._f
@@ -237,9 +253,12 @@ class Trace:
         if len(np.unique(ids)) != len(ids):
             raise f.fail(idd.name, "entity ids must be unique")
         N = len(ids)
+        if N > self.limits.entities:
+            raise f.fail(idd.name, f"{N:,} entities are {self.limits.hint('entities')}")
         hd = f.dataset("/entities/half_extents")
         _check(f, hd, spec("/entities/half_extents"), {"N": self._dim(N)}, " to match /entities/id")
         half = f.read(self._prefix(hd, {0: N}, "/frames/committed"), rows).astype(np.float64)
+        _extent_limit(f, self.limits, hd.name, half, self.voxel_size)
         bad = ~(np.isfinite(half).all(axis=1) & (half > 0).all(axis=1))
         for i in np.flatnonzero(bad)[:5]:
             self.problems.append(f"/entities/half_extents: entity {ids[i]} has non-positive or non-finite half "
@@ -268,6 +287,11 @@ class Trace:
         F = td.shape[0] if self.committed is None else int(self.committed[0])
         self._prefix(td, {0: F}, "/frames/committed")
         dims = {"F": self._dim(F), "N": self._dim(N)}
+        lim = self.limits
+        if F > lim.frames:
+            raise f.fail(td.name, f"{F:,} frames are {lim.hint('frames')}")
+        if F * N > lim.rows:
+            raise f.fail(td.name, f"{F:,} frames x {N:,} entities = {F * N:,} entity-frames are {lim.hint('rows')}")
         self._ds = {}
         dtype = None
         for name in FRAME_VECTORS:
@@ -321,8 +345,10 @@ class Trace:
         hov = self._ds["half"]
         if hov is not None:
             half = rd(hov, rows)
+            _extent_limit(self._f, self.limits, hov.name, half, self.voxel_size, active, f0, self.ids)
         else:
             half = np.broadcast_to(self.half_extents[None], (n, self.entity_count, 3))
+        _motion_limit(self._f, self.limits, motion, self.voxel_size, active, f0, self.ids)
         gd = self._ds["grounded"]
         grounded = (rd(gd, rows) != 0).astype(np.int8) if gd is not None else None
         return FrameBlock(f0, f1, start, motion, end, active, half, grounded)
@@ -415,13 +441,14 @@ class Trace:
         self.close()
 
 
-def open_trace(path, swmr: bool = False) -> Trace:
+def open_trace(path, swmr: bool = False, limits: Limits | None = None) -> Trace:
     """Open and validate a trace; raises :class:`TraceFormatError` with a one-line reason.
 
     ``swmr``: open in HDF5 SWMR read mode so :meth:`Trace.refresh` sees frames a recorder is
-    still appending.
+    still appending. ``limits`` default to :func:`resweep.core.format.limits.current`
+    (``RESWEEP_MAX`` applied).
     """
-    return Trace(path, swmr=swmr)
+    return Trace(path, swmr=swmr, limits=limits)
 
 
 def _refresh(obj):
@@ -433,6 +460,59 @@ def _refresh(obj):
     for v in obj.values():
         if isinstance(v, h5py.Dataset):
             v.refresh()
+def count_extra_chunks(origin: np.ndarray, edits: np.ndarray, S: int) -> int:
+    """How many chunks edits touch outside the recorded ones (``origin`` int64 (C, 3) voxels)."""
+    if not len(edits):
+        return 0
+    have = np.unique(origin // S, axis=0)
+    touched = np.unique(edits[:, 1:4] // S, axis=0)
+    both = np.concatenate([have, touched])
+    return len(np.unique(both, axis=0)) - len(have)
+
+
+def _world_size(f: SafeFile, lim: Limits, C: int, extra: int, S: int):
+    """Refuse a world whose chunk count or voxel count is over the limits."""
+    total = C + extra
+    why = f"{C:,} recorded chunks" + (f" + {extra:,} made for edits outside them" if extra else "")
+    if total > lim.chunks:
+        raise f.fail("/world", f"{why} are {lim.hint('chunks')}")
+    if total * S ** 3 > lim.voxels:
+        raise f.fail("/world", f"{why} of {S}^3 voxels hold {total * S ** 3:,} voxels, {lim.hint('voxels')}")
+
+
+def _first_over(big: np.ndarray, active: np.ndarray | None):
+    """(frame, column) of the first True in ``big`` (n, N) among active rows, or None."""
+    if active is not None:
+        big = big & active
+    if not big.any():
+        return None
+    return np.unravel_index(int(np.argmax(big)), big.shape)
+
+
+def _extent_limit(f, lim, name, half, vs, active=None, f0=0, ids=None):
+    """Refuse half extents over ``lim.extent`` voxels (non-finite ones are left to the check)."""
+    with np.errstate(invalid="ignore"):
+        big = (np.abs(np.asarray(half, np.float64)) > lim.extent * vs).any(-1)
+    if half.ndim == 2:
+        where = np.flatnonzero(big)
+        if len(where):
+            raise f.fail(name, f"row {int(where[0])}: half extents {half[where[0]].tolist()} (world units) are "
+                               f"{lim.hint('extent')}")
+        return
+    hit = _first_over(big, active)
+    if hit is not None:
+        raise f.fail(name, f"frame {f0 + int(hit[0])}, entity {int(ids[hit[1]])}: half extents "
+                           f"{np.asarray(half[hit]).tolist()} (world units) are {lim.hint('extent')}")
+
+
+def _motion_limit(f, lim, motion, vs, active, f0, ids):
+    """Refuse an active row whose motion along an axis is over ``lim.motion`` voxels."""
+    with np.errstate(invalid="ignore"):
+        big = (np.abs(np.asarray(motion, np.float64)) > lim.motion * vs).any(-1)
+    hit = _first_over(big, active)
+    if hit is not None:
+        raise f.fail("/frames/motion", f"frame {f0 + int(hit[0])}, entity {int(ids[hit[1]])}: motion "
+                                       f"{np.asarray(motion[hit]).tolist()} (world units, per axis) is {lim.hint('motion')}")
 
 
 def _as_str(v):

@@ -70,11 +70,8 @@ def cache_root() -> Path:
     env = os.environ.get(CACHE_ENV)
     if env:
         return Path(env).expanduser()
-    try:
-        from platformdirs import user_cache_dir
-        return Path(user_cache_dir("resweep", appauthor=False)) / "kernels"
-    except ImportError:  # pragma: no cover - platformdirs is a dependency
-        return Path.home() / ".cache" / "resweep" / "kernels"
+    from resweep.core.jit.folders import user_cache_root
+    return user_cache_root() / "kernels"
 
 
 KERNEL_DIGEST = kernel_digest()

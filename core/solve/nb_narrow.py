@@ -41,7 +41,7 @@ import numpy as np
 from resweep.core.jit.nb_float import eps_of, fl
 from resweep.core.jit.nb_jit import hot, kernel
 from resweep.core.solve.settings import CLEAR, HIT, STARTED_INSIDE  # noqa: F401  (row states, re-exported)
-from resweep.core.world.nb_world import box_corners, chunk_lookup
+from resweep.core.world.nb_world import box_corners, chunk_in_box, chunk_lookup, use_slab
 
 
 
@@ -266,17 +266,43 @@ def scan_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode):
         best: search state to continue from; mode: FIRST_HIT or ENTERS (stops at the first entry).
     Returns:
         the updated search state.
+
+    A range spanning many chunk coordinates (a huge box or motion in a sparse world) visits the
+    chunks of its thinnest slab instead of every coordinate, so the cost is bounded by the chunks
+    that exist; the result does not depend on the visiting order (see the module docstring).
     """
     keys, slot, S = world.keys, world.slot, world.chunk_size
-    for cx in range(i0 // S, i1 // S + 1):
-        for cy in range(j0 // S, j1 // S + 1):
-            for cz in range(k0 // S, k1 // S + 1):
+    c0 = (i0 // S, j0 // S, k0 // S)
+    c1 = (i1 // S, j1 // S, k1 // S)
+    ax, a, b, slab = use_slab(world, c0, c1)
+    if slab:
+        cc = world.chunk_coord
+        for q in range(a, b):
+            ci = world.axis_chunks[ax, q]
+            if not chunk_in_box(world, ci, c0, c1):
+                continue
+            best = scan_clipped(p, r, h, d, world, ci, cc[ci, 0], cc[ci, 1], cc[ci, 2], i0, i1, j0, j1, k0, k1,
+                                best, mode)
+            if mode == ENTERS and best.axes != 0:
+                return best
+        return best
+    for cx in range(c0[0], c1[0] + 1):
+        for cy in range(c0[1], c1[1] + 1):
+            for cz in range(c0[2], c1[2] + 1):
                 ci = chunk_lookup(keys, slot, cx, cy, cz)
                 if ci < 0:
                     continue
-                bx, by, bz = cx * S, cy * S, cz * S
-                best = scan_chunk(p, r, h, d, world, ci, bx, by, bz, max(i0, bx), min(i1, bx + S - 1),
-                                  max(j0, by), min(j1, by + S - 1), max(k0, bz), min(k1, bz + S - 1), best, mode)
+                best = scan_clipped(p, r, h, d, world, ci, cx, cy, cz, i0, i1, j0, j1, k0, k1, best, mode)
                 if mode == ENTERS and best.axes != 0:
                     return best
     return best
+
+
+@kernel(inline="always")
+def scan_clipped(p, r, h, d, world, ci, cx, cy, cz, i0, i1, j0, j1, k0, k1, best, mode):
+    """:func:`scan_chunk` over the part of [i0, i1] x [j0, j1] x [k0, k1] inside chunk ``ci``
+    (chunk coordinate cx, cy, cz)."""
+    S = world.chunk_size
+    bx, by, bz = cx * S, cy * S, cz * S
+    return scan_chunk(p, r, h, d, world, ci, bx, by, bz, max(i0, bx), min(i1, bx + S - 1),
+                      max(j0, by), min(j1, by + S - 1), max(k0, bz), min(k1, bz + S - 1), best, mode)

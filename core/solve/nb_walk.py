@@ -14,8 +14,11 @@ their cell) are covered without special cases:
 - a surviving region is split in two across its longest axis at the coarsest power-of-two voxel
   boundary inside it (an implicit octree over absolute coordinates: the regions, and so the
   boxes tested, do not depend on how the world is cut into chunks), and the half the motion
-  enters first is visited first; a region inside one missing chunk is dropped, small regions end
-  the descent and their boxes go through the ordinary narrow phase.
+  enters first is visited first; a region that no existing chunk meets is dropped (one hash
+  lookup per chunk coordinate for small regions, the chunk lists of the thinnest slab for large
+  ones, see ``nb_world.any_chunk``), so a long ray through empty space costs a few splits near
+  each chunk it passes, not one per chunk coordinate along it; small regions end the descent and
+  their boxes go through the ordinary narrow phase.
 
 Why the result is bit-identical to scanning the whole swept box: the region bounds are computed
 with the very float operations of the narrow phase, from a voxel index no greater (no smaller)
@@ -33,7 +36,7 @@ import numpy as np
 from resweep.core.jit.nb_float import fl
 from resweep.core.jit.nb_jit import hot, kernel
 from resweep.core.solve.nb_narrow import ENTERS, box_interval, scan_cells, scan_chunk
-from resweep.core.world.nb_world import chunk_lookup
+from resweep.core.world.nb_world import any_chunk, chunk_lookup
 
 #: Regions of at most this many voxels are scanned directly.
 LEAF_CELLS = 24
@@ -118,6 +121,8 @@ def walk_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode, stack):
         ci = chunk_lookup(keys, slot, x0 // S, y0 // S, z0 // S) if one_chunk else -1
         if one_chunk and ci < 0:
             continue  # all air
+        if not one_chunk and not any_chunk(world, (x0 // S, y0 // S, z0 // S), (x1 // S, y1 // S, z1 // S)):
+            continue  # meets no chunk: all air
         nx, ny, nz = x1 - x0 + 1, y1 - y0 + 1, z1 - z0 + 1
         small = nx <= LEAF_CELLS and ny <= LEAF_CELLS and nz <= LEAF_CELLS and nx * ny * nz <= LEAF_CELLS
         if not small and n + 2 <= stack.shape[0]:

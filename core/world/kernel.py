@@ -23,6 +23,11 @@ class KernelWorld(NamedTuple):
             ``extent``) sets the float type every kernel computes in.
         extent: float (6,) least box min and greatest box max per axis (voxel-local units); the
             walk of long sweeps bounds every block shape by it.
+        chunk_coord: int64 (C, 3) chunk coordinate of each chunk (origin // S).
+        axis_keys: int64 (3, C) per axis, the chunks' coordinates on that axis, sorted;
+        axis_chunks: int64 (3, C) the chunk index of each entry of ``axis_keys``. Scans of ranges
+            spanning many chunk coordinates visit the chunks of the thinnest slab instead, so their
+            cost is bounded by the chunks that exist (see nb_world.fewest_chunks_axis).
     """
 
     keys: np.ndarray
@@ -36,6 +41,9 @@ class KernelWorld(NamedTuple):
     reach: np.int64
     voxel_size: float
     extent: np.ndarray
+    chunk_coord: np.ndarray
+    axis_keys: np.ndarray
+    axis_chunks: np.ndarray
 
 
 _WORLDS: "weakref.WeakKeyDictionary[VoxelWorld, dict]" = weakref.WeakKeyDictionary()
@@ -58,9 +66,12 @@ def kernel_world(world: VoxelWorld, dtype) -> KernelWorld:
     boxes = np.ascontiguousarray(shapes.boxes, dtype=dt).reshape(-1, 6)
     # Least box min and greatest box max per axis bound every block's shape (the walk relies on it).
     ext = boxes[:, :3].min(axis=0).tolist() + boxes[:, 3:].max(axis=0).tolist() if len(boxes) else [0, 0, 0, 1, 1, 1]
+    coord = np.ascontiguousarray(np.asarray(world.chunk_origin, np.int64).reshape(-1, 3) // world.chunk_size)
+    order = np.argsort(coord, axis=0, kind="stable").T.copy()  # (3, C)
+    keys = np.take_along_axis(coord.T, order, axis=1).copy()
     kw = KernelWorld(world.keys, world.slot, world.blocks, np.int64(world.chunk_size),
                      np.asarray(world.lo, np.int64).copy(), np.asarray(world.hi, np.int64).copy(),
                      np.ascontiguousarray(shapes.box_start, np.int64), boxes, np.int64(shapes.reach),
-                     ft(world.voxel_size), np.asarray(ext, dt))
+                     ft(world.voxel_size), np.asarray(ext, dt), coord, keys, order.astype(np.int64))
     per[dt] = (sources, kw)
     return kw

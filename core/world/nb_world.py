@@ -79,6 +79,74 @@ def sweep_range(p, r, h, world):
     return i0, i1, j0, j1, k0, k1
 
 
+#: Ranges of at most this many chunk coordinates are visited coordinate by coordinate (hash
+#: lookups); larger ones through the chunk lists of the thinnest slab (see fewest_chunks_axis).
+DIRECT_CHUNKS = 64
+#: A region test that finds more chunks than this in its thinnest slab answers "maybe occupied".
+SLAB_PROBE = 32
+
+
+@kernel(inline="always")
+def coord_count(c0, c1):
+    """Number of chunk coordinates in the box [c0, c1] (int 3-tuples), as a float (no overflow)."""
+    return float(c1[0] - c0[0] + 1) * float(c1[1] - c0[1] + 1) * float(c1[2] - c0[2] + 1)
+
+
+@kernel(inline="always")
+def fewest_chunks_axis(world, c0, c1):
+    """(axis, a, b): the axis whose slab [c0[axis], c1[axis]] of chunk coordinates holds the
+    fewest chunks, and that slab as entries [a, b) of ``world.axis_keys[axis]``."""
+    best_ax, best_a, best_b = 0, np.int64(0), np.int64(world.axis_keys.shape[1])
+    for ax in range(3):
+        keys = world.axis_keys[ax]
+        a = np.int64(np.searchsorted(keys, c0[ax], side="left"))
+        b = np.int64(np.searchsorted(keys, c1[ax], side="right"))
+        if b - a < best_b - best_a:
+            best_ax, best_a, best_b = ax, a, b
+    return best_ax, best_a, best_b
+
+
+@kernel(inline="always")
+def chunk_in_box(world, ci, c0, c1):
+    """Whether chunk ``ci`` lies in the box [c0, c1] of chunk coordinates."""
+    cc = world.chunk_coord
+    return (c0[0] <= cc[ci, 0] <= c1[0]) and (c0[1] <= cc[ci, 1] <= c1[1]) and (c0[2] <= cc[ci, 2] <= c1[2])
+
+
+@kernel(inline="always")
+def use_slab(world, c0, c1):
+    """(ax, a, b, yes): ``yes`` when visiting the chunks of the thinnest slab is cheaper than
+    visiting every chunk coordinate of the box [c0, c1]; then entries [a, b) of
+    ``world.axis_chunks[ax]`` hold every chunk of the box (and others, filtered by chunk_in_box)."""
+    n = coord_count(c0, c1)
+    if n <= DIRECT_CHUNKS:
+        return 0, np.int64(0), np.int64(0), False
+    ax, a, b = fewest_chunks_axis(world, c0, c1)
+    return ax, a, b, float(b - a) < n
+
+
+@kernel(inline="always")
+def any_chunk(world, c0, c1):
+    """False only when no chunk lies in the box [c0, c1] of chunk coordinates (True = maybe).
+
+    Exact for boxes of few coordinates or with a thin slab; a box whose thinnest slab holds more
+    than SLAB_PROBE chunks answers True, and callers split it further."""
+    if coord_count(c0, c1) <= 8:
+        for cx in range(c0[0], c1[0] + 1):
+            for cy in range(c0[1], c1[1] + 1):
+                for cz in range(c0[2], c1[2] + 1):
+                    if chunk_lookup(world.keys, world.slot, cx, cy, cz) >= 0:
+                        return True
+        return False
+    ax, a, b = fewest_chunks_axis(world, c0, c1)
+    if b - a > SLAB_PROBE:
+        return True
+    for q in range(a, b):
+        if chunk_in_box(world, world.axis_chunks[ax, q], c0, c1):
+            return True
+    return False
+
+
 @kernel(inline="always")
 def box_corners(bboxes, b):
     """Row ``b`` of the (B, 6) box table as a 6-tuple (min xyz, max xyz; voxel-local)."""
@@ -108,29 +176,48 @@ def overlap_depth(c, h, world):
         depth (float, world units): max over solid boxes of the least per-axis overlap; 0 when
         interiors are apart (touching faces do not count).
     """
-    keys, slot, blocks, S = world.keys, world.slot, world.blocks, world.chunk_size
-    bstart, bboxes = world.box_start, world.boxes
+    keys, slot, S = world.keys, world.slot, world.chunk_size
     vs = world.voxel_size
     best = fl(vs, 0)
     i0, i1, j0, j1, k0, k1 = box_range(c, h, world)
     if i0 > i1 or j0 > j1 or k0 > k1:
         return best
-    for cx in range(i0 // S, i1 // S + 1):
-        for cy in range(j0 // S, j1 // S + 1):
-            for cz in range(k0 // S, k1 // S + 1):
+    c0 = (i0 // S, j0 // S, k0 // S)
+    c1 = (i1 // S, j1 // S, k1 // S)
+    ax, a, b, slab = use_slab(world, c0, c1)
+    if slab:  # a huge box: visit the chunks that exist, not every coordinate (max is order-free)
+        for q in range(a, b):
+            ci = world.axis_chunks[ax, q]
+            if chunk_in_box(world, ci, c0, c1):
+                cc = world.chunk_coord
+                best = max(best, chunk_depth(c, h, world, ci, cc[ci, 0], cc[ci, 1], cc[ci, 2], i0, i1, j0, j1, k0, k1))
+        return best
+    for cx in range(c0[0], c1[0] + 1):
+        for cy in range(c0[1], c1[1] + 1):
+            for cz in range(c0[2], c1[2] + 1):
                 ci = chunk_lookup(keys, slot, cx, cy, cz)
-                if ci < 0:
+                if ci >= 0:
+                    best = max(best, chunk_depth(c, h, world, ci, cx, cy, cz, i0, i1, j0, j1, k0, k1))
+    return best
+
+
+@kernel(inline="always")
+def chunk_depth(c, h, world, ci, cx, cy, cz, i0, i1, j0, j1, k0, k1):
+    """Deepest overlap (>= 0) of the box (c, h) with the solid boxes of the voxels of chunk ``ci``
+    (at chunk coordinate cx, cy, cz) inside [i0, i1] x [j0, j1] x [k0, k1]."""
+    blocks, bstart, bboxes, S = world.blocks, world.box_start, world.boxes, world.chunk_size
+    vs = world.voxel_size
+    best = fl(vs, 0)
+    bx, by, bz = cx * S, cy * S, cz * S
+    for x in range(max(i0, bx), min(i1, bx + S - 1) + 1):
+        for y in range(max(j0, by), min(j1, by + S - 1) + 1):
+            for z in range(max(k0, bz), min(k1, bz + S - 1) + 1):
+                t = blocks[ci, x - bx, y - by, z - bz]
+                if t == 0:
                     continue
-                bx, by, bz = cx * S, cy * S, cz * S
-                for x in range(max(i0, bx), min(i1, bx + S - 1) + 1):
-                    for y in range(max(j0, by), min(j1, by + S - 1) + 1):
-                        for z in range(max(k0, bz), min(k1, bz + S - 1) + 1):
-                            t = blocks[ci, x - bx, y - by, z - bz]
-                            if t == 0:
-                                continue
-                            v = (fl(vs, x), fl(vs, y), fl(vs, z))
-                            for b in range(bstart[t], bstart[t + 1]):
-                                d = box_depth(c, h, v, box_corners(bboxes, b), vs)
-                                if d > best:
-                                    best = d
+                v = (fl(vs, x), fl(vs, y), fl(vs, z))
+                for b in range(bstart[t], bstart[t + 1]):
+                    d = box_depth(c, h, v, box_corners(bboxes, b), vs)
+                    if d > best:
+                        best = d
     return best

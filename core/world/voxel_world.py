@@ -2,7 +2,9 @@
 
 Voxel (i, j, k) occupies ``[i, i+1) x [j, j+1) x [k, k+1)`` times ``voxel_size``. Voxels outside
 every chunk are air. Edits that land outside the recorded chunks get an all-air chunk made for
-them up front, so applying an edit never reallocates the world.
+them up front, so applying an edit never reallocates the world (the reader bounds how many such
+chunks a trace may ask for, see ``core/format/limits.py``). Only the chunks that edits touch keep
+a recorded copy for rewinding, so memory is about one copy of the world.
 """
 from __future__ import annotations
 
@@ -28,23 +30,27 @@ class VoxelWorld:
                  shapes: BlockShapes, voxel_size: float = 1.0, edits: np.ndarray | None = None):
         S = int(chunk_size)
         origin = np.asarray(chunk_origin, dtype=np.int64).reshape(-1, 3)
-        blocks = np.asarray(chunk_blocks).astype(np.uint16, copy=True).reshape(-1, S, S, S)
         edits = np.zeros((0, 5), np.int64) if edits is None else np.asarray(edits, np.int64).reshape(-1, 5)
+        extra = np.zeros((0, 3), np.int64)
         if len(edits):
-            have = {tuple(o) for o in (origin // S).tolist()}
-            extra = sorted({tuple(c) for c in (edits[:, 1:4] // S).tolist()} - have)
-            if extra:
-                origin = np.concatenate([origin, np.asarray(extra, np.int64) * S])
-                blocks = np.concatenate([blocks, np.zeros((len(extra), S, S, S), np.uint16)])
+            have = np.unique(origin // S, axis=0)
+            touched = np.unique(edits[:, 1:4] // S, axis=0)
+            both, first = np.unique(np.concatenate([have, touched]), axis=0, return_index=True)
+            extra = both[first >= len(have)]  # first seen among the touched: not recorded
+            origin = np.concatenate([origin, extra * S])
+        blocks = np.zeros((len(origin), S, S, S), np.uint16)
+        blocks[: len(origin) - len(extra)] = np.asarray(chunk_blocks).reshape(-1, S, S, S)
         self.chunk_size = S
         self.chunk_origin = origin
         self.shapes = shapes
         self.voxel_size = float(voxel_size)
         self.edits = edits
-        self._pristine = blocks
-        self.blocks = blocks.copy()
+        self.blocks = blocks
         self.keys, self.slot = build_hash(origin // S)
         self._edit_chunk, self._edit_local = self._locate_edits()
+        # Recorded copy of the edited chunks only: rewinding restores these.
+        self._touched = np.unique(self._edit_chunk)
+        self._pristine = blocks[self._touched].copy()
         self._applied = 0  # edits[:_applied] are in self.blocks
         self.frame = -(2**62)
         if len(origin):
@@ -55,6 +61,7 @@ class VoxelWorld:
             self.hi = np.zeros(3, np.int64)
         # Edits are sorted by frame for incremental application; file order breaks ties.
         self._edit_order = np.argsort(edits[:, 0], kind="stable") if len(edits) else np.zeros(0, np.int64)
+        self._edit_frames = edits[self._edit_order, 0]
         self.version = 0  # bumps whenever self.blocks changes (viewers cache meshes by it)
 
     def _locate_edits(self):
@@ -62,7 +69,8 @@ class VoxelWorld:
         if not len(self.edits):
             return np.zeros(0, np.int64), np.zeros((0, 3), np.int64)
         coords = self.edits[:, 1:4]
-        cidx = np.array([self.chunk_index(*(c // S)) for c in coords], dtype=np.int64)
+        uniq, inv = np.unique(coords // S, axis=0, return_inverse=True)
+        cidx = np.array([self.chunk_index(*c) for c in uniq.tolist()], dtype=np.int64)[inv.reshape(-1)]
         return cidx, coords - (coords // S) * S
 
     def chunk_index(self, cx: int, cy: int, cz: int) -> int:
@@ -89,18 +97,21 @@ class VoxelWorld:
         """
         frame = int(frame)
         if frame < self.frame and self._applied:
-            self.blocks[...] = self._pristine
+            self.blocks[self._touched] = self._pristine
             self._applied = 0
             self.version += 1
         order = self._edit_order
         n = self._applied
-        changed = False
-        while n < len(order) and self.edits[order[n], 0] <= frame:
-            e = order[n]
-            lx, ly, lz = self._edit_local[e]
-            self.blocks[self._edit_chunk[e], lx, ly, lz] = self.edits[e, 4]
-            n += 1
-            changed = True
+        stop = int(np.searchsorted(self._edit_frames, frame, side="right"))
+        changed = stop > n
+        if changed:
+            # Apply in order: where several edits hit one voxel the last one wins, so keep only it.
+            e = order[n:stop][::-1]
+            c, loc = self._edit_chunk[e], self._edit_local[e]
+            _, keep = np.unique(np.column_stack([c, loc]), axis=0, return_index=True)
+            e, c, loc = e[keep], c[keep], loc[keep]
+            self.blocks[c, loc[:, 0], loc[:, 1], loc[:, 2]] = self.edits[e, 4]
+            n = stop
         self._applied = n
         self.frame = frame
         if changed:
