@@ -181,7 +181,7 @@ def main(argv=None) -> int:
     from resweep.core.errors import ResweepError
     from resweep.core.format.limits import raise_limits
     try:
-        raise_limits(",".join(args.max))  # also read by the isolated validator and the viewer
+        raise_limits(",".join(getattr(args, "max", [])))  # also read by the isolated validator and the viewer
     except ValueError as exc:
         parser.error(f"--max: {exc}")
     try:

@@ -405,7 +405,9 @@ class Trace:
             _refresh(obj)
         _refresh(self._f.file["/world"])
         self._load_commit()
-        self._load_edits()
+        ed = self._f.dataset("/world/edits", required=False)
+        self.edits = (self._read_edits(ed, self.chunk_origin, self.chunk_size) if ed is not None
+                      else np.zeros((0, 5), np.int64))
         self._load_entities()
         self._load_frames()
         return self.frame_count - before

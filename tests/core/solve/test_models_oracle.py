@@ -89,8 +89,15 @@ def _compare(grid, rws, stt, oracle, up="y", key=None):
 def test_axis_model_matches_exact_oracle(grid, rws, skin, order):
     stt = SolverSettings(model="axis", axis_order=order, skin=skin)
     idx = ["xyz".index(a) for a in order]
-    bad, _ = _compare(grid, rws, stt, lambda so, s, m, h: mo.axis_model(so, s, m, h, skin, idx))
+    bad, _ = _compare(grid, rws, stt, lambda so, s, m, h: mo.axis_model(so, s, m, h, skin, idx), key="axis")
     assert not bad, bad[:3]
+
+
+def test_axis_oracle_compared_most_rows():
+    # Runs after the property test above (file order): a shrunk example may lose most of its rows
+    # to near-ties (faces a skin apart); over all examples, most rows were compared.
+    seen, dropped = TOTALS["axis"]
+    assert seen >= 12 * ROWS and dropped <= seen // 2, (seen, dropped)
 
 
 @HYP

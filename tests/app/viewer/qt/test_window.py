@@ -297,7 +297,9 @@ def test_copy_report_holds_the_numbers_and_commands_that_reproduce_the_view(qtbo
     assert f"{float(row.error[0, KINDS.index('tunneling')]):.6f}" in md
     cmds = [ln for ln in md.splitlines() if ln.startswith("resweep ")]
     assert shlex.split(cmds[0])[1:] == ["view", str(DEMO), "--frame", "40", "--entity", "102", "--tolerance", "0.01",
-                                        "--skin", "0.001", "--passes", "3", "--precision", "float64"]
+                                        "--skin", "0.001", "--passes", "3", "--precision", "float64",
+                                        "--model", "slide", "--substep", "0.0", "--iterations", "4",
+                                        "--step-height", "0.0"]
     parser = build_parser()
     for c in cmds:  # both commands parse with the real command line
         args = parser.parse_args(shlex.split(c)[1:])
