@@ -6,6 +6,8 @@ it the cost shows once, as the setup of the first test, and every test's own tim
 """
 from __future__ import annotations
 
+import os
+
 import numpy as np
 import pytest
 
@@ -20,3 +22,15 @@ def warm_kernels():
     for precision, frame_dtype in WARM:
         warm_up(precision, frame_dtype, depths=True)
     return WARM
+
+
+@pytest.fixture(autouse=True)
+def _restore_environment():
+    """Put os.environ back after every test: code under test may export settings for its child
+    processes (kernel cache folder, raised limits), and a later test's children must not inherit
+    them."""
+    saved = dict(os.environ)
+    yield
+    if os.environ != saved:
+        os.environ.clear()
+        os.environ.update(saved)

@@ -19,7 +19,10 @@ GIB = 1 << 30
 
 def test_mutated_traces_give_one_line_no_crash_no_hang_bounded_memory(tmp_path):
     cases = int(os.environ.get("RESWEEP_FUZZ_CASES", "210"))
-    env = {**os.environ, "RESWEEP_VET_CACHE": str(tmp_path / "vetted.json"), "RESWEEP_VET_CPU": "3"}
+    # The runner's own settings only: no kernel folder, limits or isolation switch left over by
+    # whatever ran before in this process.
+    env = {k: v for k, v in os.environ.items() if not k.startswith("RESWEEP_")}
+    env.update(RESWEEP_VET_CACHE=str(tmp_path / "vetted.json"), RESWEEP_VET_CPU="3")
     proc = subprocess.run([sys.executable, str(RUNNER), "--cases", str(cases), "--seed", "3",
                            "--snapshot-every", "15", "--workdir", str(tmp_path / "work")],
                           capture_output=True, text=True, timeout=1200, env=env)
