@@ -157,3 +157,29 @@ def test_grounded_needs_overlapping_footprints():
     g[2, 0, 1] = 1
     r = _run(g, (1.75, 1.25, 1.5), (0, 0, 0), 0.25, skin=SKIN, tolerance=0.0, grounded=np.array([0]))
     assert not r.flags[0] & (1 << BY_NAME["grounded_mismatch"].bit)
+
+
+@pytest.mark.parametrize("ahead, moved", [(1 / 128, 0.0), (1 / 32, 1 / 32 - SKIN)])
+def test_axis_back_off_stays_on_the_stretch_just_swept(ahead, moved):
+    # Cubes at x in [0, 1] and [2, 3]; the box spans x in [1 + 1/128, 2 - ahead]: the clearance
+    # behind it is 1/128 (less than the skin 1/64) and the gap ahead is ``ahead``; it moves +1/4. The rule (gap minus skin, never below zero, never reversing d) keeps the end on the
+    # stretch between the start and the contact, which the box has just swept through, so the
+    # back-off can never create a contact behind it: a gap ahead under the skin means no move.
+    hx = (1 - 1 / 128 - ahead) / 2
+    sx = 1 + 1 / 128 + hx
+    r = _run(_block((0, 0, 0), (2, 0, 0)), (sx, 0.5, 0.5), (0.25, 0, 0), (hx, 0.25, 0.25), model="axis", skin=SKIN)
+    assert r.ref_end[0, 0] - sx == moved
+    assert r.ref_end[0, 0] - hx >= 1 + 1 / 128  # the clearance behind never shrinks
+
+
+@pytest.mark.parametrize("iterations, y", [(1, 1.5 + SKIN), (2, 1.5 - SKIN), (4, 1.5 - SKIN)])
+def test_pushout_skin_can_push_a_tight_box_into_the_far_block(iterations, y):
+    # The push-out rule on purpose (the discrete step as engines write it): a box exactly one voxel
+    # tall (h 0.5) in a one-voxel gap between cubes y in [0, 1] and [2, 3] sinks 1/8 into the lower
+    # cube. Iteration 1: y penetration min(1 - 0.875, 1.875 - 0) = 1/8 < x, z (0.75): pushed up
+    # 1/8 + skin, so it now overlaps the upper cube by the skin. Iteration 2: pushed down skin + skin,
+    # overlapping the lower cube by the skin; and so on. Unlike the sweep models' back-off, the
+    # push-out skin may create an overlap; the model reproduces that, it does not repair it.
+    r = _run(_block((0, 0, 0), (0, 2, 0)), (0.5, 1.5, 0.5), (0, -1 / 8, 0), (0.25, 0.5, 0.25), model="pushout",
+             skin=SKIN, iterations=iterations)
+    assert r.ref_end[0].tolist() == [0.5, y, 0.5]
