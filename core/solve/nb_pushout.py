@@ -9,7 +9,9 @@ turn comes, and push the entity out of it along its axis of least penetration by
 penetration plus ``skin``. Per axis the penetration is the smaller of the two distances that would
 separate the boxes (equal distances push towards +); ties between axes go to the up axis, then x,
 y, z. Stop early when an iteration pushed nothing. It tunnels and depends on the visit order on
-purpose.
+purpose. Unlike the sweep models' skin back-off, the push past the face by ``skin`` may create an
+overlap with the block on the far side of a tight gap (the next iteration pushes back): the model
+reproduces the discrete step with its flaws, it does not repair it.
 """
 from __future__ import annotations
 
