@@ -151,6 +151,31 @@ def vet_all(paths) -> list[str]:
     return bad
 
 
+def vet_all_while(paths, work=None) -> list[str]:
+    """:func:`vet_all` in a background thread while ``work()`` (if any) runs on this one.
+
+    The validator children spend most of their time starting an interpreter and importing h5py;
+    loading the solver kernels meanwhile hides that on a machine with a second core. Returns
+    vet_all's lines.
+    """
+    if work is None:
+        return vet_all(paths)
+    got: list = []
+    t = threading.Thread(target=lambda: got.append(vet_all(paths)), name="resweep-vet", daemon=True)
+    t.start()
+    work()
+    t.join()
+    return got[0] if got else ["the isolated validator did not report"]
+
+
+def _kernels_on_disk() -> bool:
+    """True when the kernels would be loaded rather than compiled (a cached or prebuilt build):
+    only then are they loaded before the validators answer (a bad file must not wait for a
+    compile)."""
+    from resweep.core.jit.nb_jit import CACHE_DIR, PREBUILT_DIR
+    return PREBUILT_DIR.is_dir() or any(CACHE_DIR.glob("*.nbi"))
+
+
 def run(args) -> int:
     from resweep.app.cli import farm
     if farm.wanted(args):  # folders, globs or farm options: many traces on a pool or a cluster
@@ -168,7 +193,11 @@ def run(args) -> int:
     if getattr(args, "follow", False):
         from resweep.app.cli.check_follow import run_follow
         return run_follow(args, settings, fail_on, print_summary, compile_notice)
-    bad = vet_all(args.traces)  # isolated first open of every trace, then a normal open
+    warm = None
+    if _kernels_on_disk():
+        def warm():
+            compile_notice(settings.precision, quiet=args.quiet)
+    bad = vet_all_while(args.traces, warm)  # isolated first open of every trace, then a normal open
     bad = bad or open_all(args.traces)
     if bad:
         for line in bad:

@@ -109,6 +109,18 @@ def _run_child(path: str) -> Verdict:
     return _verdict(proc, cpu, mem)
 
 
+#: Largest peak resident set (bytes) a validator child of this process reported; None before any
+#: did. Read by the fuzz runner, which bounds the children's memory as well as its own.
+peak_child_rss: int | None = None
+
+
+def _note_peak(doc: dict) -> None:
+    global peak_child_rss
+    got = doc.get("peak_rss")
+    if isinstance(got, int) and (peak_child_rss is None or got > peak_child_rss):
+        peak_child_rss = got
+
+
 def _verdict(proc, cpu: int, mem: int) -> Verdict:
     rc = proc.returncode
     lines = proc.stdout.decode("utf-8", "replace").strip().splitlines()
@@ -124,6 +136,7 @@ def _verdict(proc, cpu: int, mem: int) -> Verdict:
     if lines:
         try:
             doc = json.loads(lines[-1])
+            _note_peak(doc)
             if doc.get("ok"):
                 return Verdict(True)
             if doc.get("memory"):

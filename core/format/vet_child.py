@@ -2,7 +2,7 @@
 
 Run as ``python -c "...vet_child import main..." PATH CPU_SECONDS ADDRESS_SPACE_BYTES``. Prints one
 JSON line: ``{"ok": true}`` or ``{"ok": false, "dataset": ..., "reason": ...}`` (``"memory": true``
-when the address-space limit stopped it). Imports only numpy, h5py and resweep.core.format.
+when the address-space limit stopped it), with ``"peak_rss"``: the child's own peak resident bytes. Imports only numpy, h5py and resweep.core.format.
 """
 from __future__ import annotations
 
@@ -38,6 +38,21 @@ def validate(path: str) -> dict:
     return {"ok": True}
 
 
+def peak_rss() -> int | None:
+    """This process's own peak resident set in bytes (``VmHWM``), or None where /proc has none.
+
+    Not ``getrusage``: on Linux its ``ru_maxrss`` survives ``exec`` and so also counts the parent
+    the child was forked from; ``VmHWM`` belongs to the address space made at ``exec``."""
+    try:
+        with open("/proc/self/status", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("VmHWM:"):
+                    return int(line.split()[1]) * 1024
+    except (OSError, ValueError, IndexError):
+        pass
+    return None
+
+
 def main(argv=None) -> int:
     argv = sys.argv[1:] if argv is None else argv
     path, cpu, mem = argv[0], int(argv[1]), int(argv[2])
@@ -47,6 +62,7 @@ def main(argv=None) -> int:
         doc = validate(path)
     except MemoryError:
         doc = {"ok": False, "memory": True}
+    doc["peak_rss"] = peak_rss()
     sys.stdout.write(json.dumps(doc) + "\n")
     sys.stdout.flush()
     return 0

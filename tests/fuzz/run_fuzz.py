@@ -7,7 +7,7 @@ statuses and stderr and checks the input is unchanged. Prints one JSON document:
 outcome and the failures (a failure is a status outside 0/1/2, a traceback, an internal error, a
 stderr that is not exactly one line naming the file on status 2, a changed input).
 
-    python tests/fuzz/run_fuzz.py --cases 10000 --seed 1 [--snapshot-every 25]
+    python tests/fuzz/run_fuzz.py --cases 10000 --seed 1 [--snapshot-every 25] [--first K] [--progress P]
 
 A crash or hang of this process itself is seen by the caller (its exit status, its timeout).
 """
@@ -75,6 +75,10 @@ def main(argv=None) -> int:
                     help="isolated validation (a child process) on every k-th case and every named case; the "
                          "others validate in this process (same checks, no child; a file that hangs HDF5 then hangs the run)")
     ap.add_argument("--max-seconds", type=float, default=None, help="stop after this long; report the cases run")
+    ap.add_argument("--first", type=int, default=0,
+                    help="index of the first case (a long run continued in a later process: same seed, next index)")
+    ap.add_argument("--progress", default=None,
+                    help="write the summary so far to this JSON file every 100 cases (kept if the run is killed)")
     ap.add_argument("--workdir", default=None)
     args = ap.parse_args(argv)
     os.environ.setdefault("RESWEEP_VET_CPU", "3")
@@ -95,7 +99,9 @@ def main(argv=None) -> int:
     families: Counter = Counter()
     failures = []
     done = 0
-    for k in range(args.cases):
+    for k in range(args.first, args.first + args.cases):
+        if args.progress and done and done % 100 == 0:
+            _write_json(args.progress, _summary(args, done, t0, t_warm, families, outcomes, failures))
         if args.max_seconds is not None and time.perf_counter() - t0 > args.max_seconds:
             break
         done += 1
@@ -124,14 +130,30 @@ def main(argv=None) -> int:
         if _digest(path) != before:
             failures.append({"case": k, "family": family, "command": "-", "problem": "input changed"})
         os.unlink(path)
-    self_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
-    child_rss = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss * 1024
-    print(json.dumps({"cases": done, "seed": args.seed, "seconds": round(time.perf_counter() - t0, 1),
-                      "warm_up_seconds": round(t0 - t_warm, 1),
-                      "peak_rss_bytes": self_rss, "peak_child_rss_bytes": child_rss,
-                      "families": dict(families), "outcomes": dict(sorted(outcomes.items())),
-                      "failures": failures[:50], "failure_count": len(failures)}, indent=1))
+    doc = _summary(args, done, t0, t_warm, families, outcomes, failures)
+    if args.progress:
+        _write_json(args.progress, doc)
+    print(json.dumps(doc, indent=1))
     return 0
+
+
+def _summary(args, done, t0, t_warm, families, outcomes, failures) -> dict:
+    from resweep.core.format import vet
+    self_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    # The validator children report their own peak (VmHWM): getrusage's RUSAGE_CHILDREN also counts
+    # the copy of this process each child was forked from before it exec'd.
+    return {"cases": done, "seed": args.seed, "first": args.first, "seconds": round(time.perf_counter() - t0, 1),
+            "warm_up_seconds": round(t0 - t_warm, 1),
+            "peak_rss_bytes": self_rss, "peak_child_rss_bytes": vet.peak_child_rss,
+            "families": dict(families), "outcomes": dict(sorted(outcomes.items())),
+            "failures": failures[:50], "failure_count": len(failures)}
+
+
+def _write_json(path, doc) -> None:
+    tmp = f"{path}.tmp"
+    with open(tmp, "w", encoding="utf-8") as fh:
+        json.dump(doc, fh, indent=1)
+    os.replace(tmp, path)
 
 
 if __name__ == "__main__":

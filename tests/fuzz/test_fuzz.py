@@ -34,4 +34,5 @@ def test_mutated_traces_give_one_line_no_crash_no_hang_bounded_memory(tmp_path):
     # Every family was exercised, and some mutated files were still valid traces that reached the solver.
     assert set(doc["families"]) >= {"flip", "overwrite", "truncate", "structure", "declared", "link", "named"}
     assert doc["outcomes"].get("check exit 0", 0) + doc["outcomes"].get("check exit 1", 0) > 0
+    assert doc["peak_child_rss_bytes"] is not None  # the isolated validator ran and reported its peak
     assert doc["peak_rss_bytes"] < GIB and doc["peak_child_rss_bytes"] < GIB, doc
