@@ -16,7 +16,7 @@ import numpy as np
 
 from resweep.core.jit.nb_float import fl
 from resweep.core.jit.nb_jit import hot, kernel
-from resweep.core.solve.nb_ground import apart_across, box_bounds, next_box
+from resweep.core.solve.nb_ground import NO_MEMO, apart_across, block_cached, box_bounds
 from resweep.core.solve.nb_slide import slide_axis
 from resweep.core.world.nb_world import box_corners, sweep_range
 
@@ -27,6 +27,17 @@ def along(a, d, zero):
     return (d if a == 0 else zero, d if a == 1 else zero, d if a == 2 else zero)
 
 
+@kernel(inline="always")
+def voxel_of(a, u, s1, s2):
+    """Voxel (x, y, z) with coordinate ``u`` on axis ``a`` and ``s1``, ``s2`` on the other two axes
+    in x, y, z order."""
+    if a == 0:
+        return u, s1, s2
+    if a == 1:
+        return s1, u, s2
+    return s1, s2, u
+
+
 @hot
 def nearest_ahead(p, h, world, a, d):
     """Nearest solid box ahead of the box (p, h) along axis ``a`` within the sweep by ``d`` != 0.
@@ -34,27 +45,46 @@ def nearest_ahead(p, h, world, a, d):
     Returns (gap, x, y, z, type, tested): the gap in world units (inf when none; ties keep the
     smallest (x, y, z, box index), so the visit order does not matter), its voxel and block type
     (-1 when none) and the number of boxes tested.
+
+    Voxel layers across ``a`` are visited nearest first; a box of layer ``u`` lies at least
+    ``u * voxel_size`` (``(u + 1) * voxel_size`` going down) from the leading face, and float
+    rounding is monotonic, so once that bound exceeds the best gap no later layer can beat or tie
+    it and the scan stops: a clipped axis costs the layers up to its contact, not its whole motion.
     """
     vs = world.voxel_size
     rng = sweep_range(p, along(a, d, fl(vs, 0)), h, world)
+    o1 = 1 if a == 0 else 0
+    o2 = 1 if a == 2 else 2
+    u0, u1 = rng[2 * a], rng[2 * a + 1]
+    lo1, hi1, lo2, hi2 = rng[2 * o1], rng[2 * o1 + 1], rng[2 * o2], rng[2 * o2 + 1]
+    lead = p[a] + h[a] if d > 0 else p[a] - h[a]
     best = fl(vs, np.inf)
     hx, hy, hz, hb, ht, tested = np.int64(0), np.int64(0), np.int64(0), np.int64(-1), np.int64(-1), np.int64(0)
-    x, y, z, b = rng[0], rng[2], rng[4], np.int64(-1)
-    while True:
-        x, y, z, b, t = next_box(world, rng, x, y, z, b)
-        if t == 0:
+    memo = NO_MEMO
+    bstart = world.box_start
+    for k in range(u1 - u0 + 1):
+        u = u0 + k if d > 0 else u1 - k
+        near = fl(vs, u) * vs - lead if d > 0 else lead - (fl(vs, u) + fl(vs, 1)) * vs
+        if near > best:
             break
-        tested += 1
-        v = (fl(vs, x), fl(vs, y), fl(vs, z))
-        bb = box_corners(world.boxes, b)
-        if apart_across(p, h, v, bb, vs, a):
-            continue
-        lo, hi = box_bounds(v, bb, a, vs)
-        g = lo - (p[a] + h[a]) if d > 0 else (p[a] - h[a]) - hi
-        if g < 0:
-            continue  # already overlapped along a (or behind): ignored
-        if g < best or (g == best and (x, y, z, b) < (hx, hy, hz, hb)):
-            best, hx, hy, hz, hb, ht = g, np.int64(x), np.int64(y), np.int64(z), np.int64(b), np.int64(t)
+        for s1 in range(lo1, hi1 + 1):
+            for s2 in range(lo2, hi2 + 1):
+                x, y, z = voxel_of(a, u, s1, s2)
+                t, memo = block_cached(world, x, y, z, memo)
+                if t == 0:
+                    continue
+                v = (fl(vs, x), fl(vs, y), fl(vs, z))
+                for b in range(bstart[t], bstart[t + 1]):
+                    tested += 1
+                    bb = box_corners(world.boxes, b)
+                    if apart_across(p, h, v, bb, vs, a):
+                        continue
+                    lo, hi = box_bounds(v, bb, a, vs)
+                    g = lo - lead if d > 0 else lead - hi
+                    if g < 0:
+                        continue  # already overlapped along a (or behind): ignored
+                    if g < best or (g == best and (x, y, z, b) < (hx, hy, hz, hb)):
+                        best, hx, hy, hz, hb, ht = g, np.int64(x), np.int64(y), np.int64(z), np.int64(b), np.int64(t)
     return best, hx, hy, hz, ht, tested
 
 

@@ -25,6 +25,26 @@ def block_at(world, x, y, z):
 
 
 @kernel(inline="always")
+def block_cached(world, x, y, z, memo):
+    """:func:`block_at` remembering the chunk of the previous call: ``memo`` = (cx, cy, cz, index)
+    (index -2 before the first call; start with :data:`NO_MEMO`). Neighbouring voxels of a scan
+    share a chunk, so most calls skip the hash lookup. Returns (type, memo)."""
+    S = world.chunk_size
+    cx, cy, cz = x // S, y // S, z // S
+    ci = memo[3]
+    if ci == -2 or cx != memo[0] or cy != memo[1] or cz != memo[2]:
+        ci = np.int64(chunk_lookup(world.keys, world.slot, cx, cy, cz))
+        memo = (np.int64(cx), np.int64(cy), np.int64(cz), ci)
+    if ci < 0:
+        return 0, memo
+    return world.blocks[ci, x - cx * S, y - cy * S, z - cz * S], memo
+
+
+#: The empty memo of :func:`block_cached`.
+NO_MEMO = (np.int64(0), np.int64(0), np.int64(0), np.int64(-2))
+
+
+@kernel(inline="always")
 def next_box(world, rng, x, y, z, b):
     """The solid box after box ``b`` of voxel (x, y, z) in ascending (x, y, z) voxel order, table
     order within a voxel, inside the inclusive voxel ranges ``rng`` = (i0, i1, j0, j1, k0, k1).

@@ -19,7 +19,7 @@ import numpy as np
 
 from resweep.core.jit.nb_float import fl
 from resweep.core.jit.nb_jit import hot, kernel
-from resweep.core.solve.nb_ground import box_bounds, next_box
+from resweep.core.solve.nb_ground import NO_MEMO, block_cached, box_bounds
 from resweep.core.solve.settings import MAX_SUBSTEPS
 from resweep.core.world.nb_world import box_corners, box_range
 
@@ -65,21 +65,25 @@ def push_round(p, h, world, skin, up):
     rng = box_range(p0, h, world)
     pushes = 0
     fx, fy, fz, ft = np.int64(0), np.int64(0), np.int64(0), np.int64(-1)
-    x, y, z, b = rng[0], rng[2], rng[4], np.int64(-1)
-    while True:
-        x, y, z, b, t = next_box(world, rng, x, y, z, b)
-        if t == 0:
-            break
-        v = (fl(vs, x), fl(vs, y), fl(vs, z))
-        bb = box_corners(world.boxes, b)
-        if not overlaps(p0, h, v, bb, vs) or not overlaps(p, h, v, bb, vs):
-            continue  # not listed at the round's start, or no longer overlapping
-        a, push = least_penetration(p, h, v, bb, vs, up)
-        d = push + skin if push >= 0 else push - skin
-        p = (p[0] + d if a == 0 else p[0], p[1] + d if a == 1 else p[1], p[2] + d if a == 2 else p[2])
-        if pushes == 0:
-            fx, fy, fz, ft = np.int64(x), np.int64(y), np.int64(z), np.int64(t)
-        pushes += 1
+    bstart = world.box_start
+    memo = NO_MEMO
+    for x in range(rng[0], rng[1] + 1):  # ascending (x, y, z), boxes in table order
+        for y in range(rng[2], rng[3] + 1):
+            for z in range(rng[4], rng[5] + 1):
+                t, memo = block_cached(world, x, y, z, memo)
+                if t == 0:
+                    continue
+                v = (fl(vs, x), fl(vs, y), fl(vs, z))
+                for b in range(bstart[t], bstart[t + 1]):
+                    bb = box_corners(world.boxes, b)
+                    if not overlaps(p0, h, v, bb, vs) or not overlaps(p, h, v, bb, vs):
+                        continue  # not listed at the round's start, or no longer overlapping
+                    a, push = least_penetration(p, h, v, bb, vs, up)
+                    d = push + skin if push >= 0 else push - skin
+                    p = (p[0] + d if a == 0 else p[0], p[1] + d if a == 1 else p[1], p[2] + d if a == 2 else p[2])
+                    if pushes == 0:
+                        fx, fy, fz, ft = np.int64(x), np.int64(y), np.int64(z), np.int64(t)
+                    pushes += 1
     return p, pushes, fx, fy, fz, ft
 
 
