@@ -24,6 +24,7 @@ from resweep.app.viewer.panels import EntitiesPanel, FramePanel, SettingsPanel
 from resweep.app.viewer.playback import Playback
 from resweep.app.viewer.report_md import frame_facts, report_markdown, snapshot_command
 from resweep.app.viewer.flags import TraceFlags
+from resweep.app.viewer.resolve import ResolveFeed
 from resweep.app.viewer.hunt import HuntTools
 from resweep.app.viewer.follow import RecordingFollower
 from resweep.app.viewer.timeline import ACCENT, GROOVE, INK, PANEL, Timeline, draw_icon
@@ -57,7 +58,7 @@ class MainWindow(QMainWindow):
         self.worker = TraceWorker(session_factory or default_session_factory, self)
         self.follower = RecordingFollower(self)
         self._pending: dict = {}
-        self._solved_upto = 0
+        self.feed: ResolveFeed | None = None  # takes the background re-solve's results into the flags
         self._camera = "story"
         self._refreshing = False  # a frame is being solved off the GUI thread (see refresh_view)
         self._refresh_again = False
@@ -94,9 +95,8 @@ class MainWindow(QMainWindow):
         lay.setContentsMargins(0, 0, 0, 0)
         lay.setSpacing(0)
         if with_viewport:
+            from resweep.app.scene.viewport import ViewOptions, Viewport  # first: it defers pyplot
             from pyvistaqt import QtInteractor
-
-            from resweep.app.scene.viewport import ViewOptions, Viewport
             self.plotter = QtInteractor(centre)
             self.plotter.setFocusPolicy(Qt.FocusPolicy.ClickFocus)
             # VTK's own letter keys (q/e quit, 3 stereo, s/w surface style...) would fight the
@@ -265,7 +265,7 @@ class MainWindow(QMainWindow):
         if focus is None and tr.frame_count:
             focus = session.default_column(frame)
         self.flags = TraceFlags(tr.frame_count, tr.entity_count)
-        self._solved_upto = 0
+        self.feed = ResolveFeed(self.flags)
         if self.viewport is not None:
             self.viewport.set_session(session)
         self.entities.set_trace(tr.ids, tr.names, self.flags)
@@ -287,22 +287,20 @@ class MainWindow(QMainWindow):
     def _start_solve(self):
         if self.session is None:
             return
-        self.flags.reset()
-        self._solved_upto = 0
+        self.feed.restart()
         self.progress.setValue(0)
         self.worker.solve(self.session.path, self.pb.settings)
 
     # -- background results --------------------------------------------------------------------
-    def _on_block(self, blk):
-        if self.flags is not None:
-            self.flags.add_block(blk)
+    def _on_block(self, rows):
+        if self.feed is not None:
+            self.feed.rows(rows)
             self.timeline.strip.update()
             self.entities.schedule_refresh()
 
     def _on_progress(self, done, total):
-        if self.flags is not None and done > self._solved_upto:
-            self.flags.mark_solved(np.arange(self._solved_upto, min(done, self.flags.frame_count)))
-            self._solved_upto = done
+        if self.feed is not None:
+            self.feed.progress(done, total)
         self.progress.setMaximum(max(1, total))
         self.progress.setValue(done)
 
