@@ -97,7 +97,9 @@ class MainWindow(QMainWindow):
         if with_viewport:
             from resweep.app.scene.viewport import ViewOptions, Viewport  # first: it defers pyplot
             from pyvistaqt import QtInteractor
-            self.plotter = QtInteractor(centre)
+            # No render timer: an idle software-GL view re-rendered 5 times a second burns a core
+            # the background re-solve needs; the window asks for a paint when the scene changes.
+            self.plotter = QtInteractor(centre, auto_update=False)
             self.plotter.setFocusPolicy(Qt.FocusPolicy.ClickFocus)
             # VTK's own letter keys (q/e quit, 3 stereo, s/w surface style...) would fight the
             # window's shortcuts; the window's actions still see every key first.
@@ -268,6 +270,7 @@ class MainWindow(QMainWindow):
         self.feed = ResolveFeed(self.flags)
         if self.viewport is not None:
             self.viewport.set_session(session)
+            self._redraw()
         self.entities.set_trace(tr.ids, tr.names, self.flags)
         self.timeline.set_trace(tr.time, self.flags)
         self.pb.adopt(tr.frame_count, tr.entity_count, frame, focus)
@@ -381,6 +384,7 @@ class MainWindow(QMainWindow):
             self.state = state
             if self.viewport is not None and col is not None:
                 self.viewport.show(self.state, col, self.view_options)
+                self._redraw()
             facts = frame_facts(self.session, self.state, col) if col is not None else None
         except Exception as exc:  # the GUI boundary: one line in the panel, the window stays usable
             self.frame_panel.show_facts(None, f"frame {self.pb.frame} cannot be shown: {error_line(exc)}")
@@ -400,14 +404,22 @@ class MainWindow(QMainWindow):
         self.view_options.show_trail = self.act_trail.isChecked()
         self.refresh_view()
 
+    def _redraw(self):
+        """Ask for one paint of the 3-D view (it renders there); paints asked for before it
+        happens merge into one."""
+        if self.plotter is not None:
+            self.plotter.update()
+
     def set_camera(self, preset: str):
         self._camera = preset
         if self.viewport is not None and self.state is not None:
             self.viewport.set_camera(preset)
+            self._redraw()
 
     def fit(self):
         if self.viewport is not None and self.state is not None:
             self.viewport.fit()
+            self._redraw()
 
     def focus_camera(self):
         self.set_camera("story")
@@ -431,6 +443,7 @@ class MainWindow(QMainWindow):
         from resweep.app.scene.caption import caption_lines
         from resweep.app.scene.picture import compose
         if self.plotter is not None:
+            self.plotter.render()  # the scene as it is now, even if its paint is still queued
             view = np.ascontiguousarray(self.plotter.screenshot(return_img=True)[..., :3])
         else:
             img = self.centralWidget().grab().toImage().convertToFormat(QImage.Format.Format_RGB888)
