@@ -1,10 +1,11 @@
 """Keep pyvista's plotting module from importing matplotlib's pyplot until something uses it.
 
-``pyvista.plotting`` imports ``matplotlib.pyplot`` (and the Agg canvas) at import time for
-colour maps and charts; resweep uses neither, and pyplot with its figure, axes and backend
-machinery is about a third of a warm ``resweep snapshot``'s CPU time. A placeholder module stands
-in for each until an attribute is first read, which then imports the real module: nothing
-changes for code that does use them, it only pays later.
+``pyvista.plotting`` imports ``matplotlib.pyplot`` at import time for colour cycles and charts;
+resweep uses neither, and pyplot with its figures and axes is about a sixth of a warm
+``resweep snapshot``'s CPU time. A placeholder module stands in for it until an attribute is
+first read, which then imports the real module: nothing changes for code that does use it, it
+only pays later. (A module imported with ``from M import name`` cannot be deferred so: the name
+is read at once. pyvista's charts import the Agg canvas that way.)
 """
 from __future__ import annotations
 
@@ -13,7 +14,7 @@ import importlib.util
 import sys
 import types
 
-DEFERRED = ("matplotlib.pyplot", "matplotlib.backends.backend_agg")
+DEFERRED = ("matplotlib.pyplot",)
 
 
 class _Deferred(types.ModuleType):
