@@ -67,7 +67,8 @@ class PictureMaker:
         # The legend depends on what gets drawn, so the band is laid out after the first show.
         layout = band_layout(W, H, lines, vp.legend)
         view_h = max(MIN_VIEW_H, H - layout.height)
-        plotter.window_size = (W, view_h)
+        if tuple(plotter.render_window.GetSize()) != (W, view_h):
+            plotter.render_window.SetSize(W, view_h)  # pyvista's window_size setter renders as well
         if not self.reframe and not self._pointed and vp.story is not None and vp.locked_dir is None:
             vp.locked_dir = np.asarray(vp.story.view_dir, np.float64)
         vp.set_camera(self.camera)

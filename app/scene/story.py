@@ -305,30 +305,48 @@ def choose_view(story: Story, motion, up: int, solid: np.ndarray) -> np.ndarray:
     mn = np.linalg.norm(motion)
     keys = [c for c in (story.start, story.ref, story.rec) if _fin(c)]
     reach = 2.5 * story.radius + 2.0
-    best, best_score = None, -np.inf
+    dirs = []
     for elev in (25.0, 45.0, 70.0):
         for az in range(0, 360, 30):
             e, a = np.radians(elev), np.radians(az)
-            d = np.cos(e) * (np.cos(a) * h1 + np.sin(a) * h2) + np.sin(e) * e_up
-            score = 0.0
-            if gn > 0:
-                score += 1.0 * np.linalg.norm(np.cross(d, g / gn))
-            if mn > 0:
-                score += 0.5 * np.linalg.norm(np.cross(d, motion / mn)) - 0.15 * (d @ motion) / mn
-            score -= 0.1 * abs(elev - 40.0) / 45.0
-            for nrm in story.normals:  # see the hit faces from their front
-                score += 0.12 * float(d @ nrm) / max(1, len(story.normals))
-            if len(solid) and keys:
-                blocked = sum(_blocked(solid, p, p + d * reach, story.half) for p in keys)
-                score -= 0.6 * blocked / len(keys)
-            if score > best_score:
-                best, best_score = d, score
+            dirs.append((elev, np.cos(e) * (np.cos(a) * h1 + np.sin(a) * h2) + np.sin(e) * e_up))
+    if len(solid) and keys:  # sight lines of every direction at once, per key point
+        along = np.array([d for _, d in dirs])
+        blocked_all = sum(_blocked_many(solid, p, along * reach, story.half)
+                          for p in keys)
+    best, best_score = None, -np.inf
+    for i, (elev, d) in enumerate(dirs):
+        score = 0.0
+        if gn > 0:
+            score += 1.0 * np.linalg.norm(np.cross(d, g / gn))
+        if mn > 0:
+            score += 0.5 * np.linalg.norm(np.cross(d, motion / mn)) - 0.15 * (d @ motion) / mn
+        score -= 0.1 * abs(elev - 40.0) / 45.0
+        for nrm in story.normals:  # see the hit faces from their front
+            score += 0.12 * float(d @ nrm) / max(1, len(story.normals))
+        if len(solid) and keys:
+            score -= 0.6 * blocked_all[i] / len(keys)
+        if score > best_score:
+            best, best_score = d, score
     return best
 
 
-def _blocked(solid, p, q, half) -> float:
-    """Solid boxes (0..3, capped) the sight line from ``p`` to ``q`` crosses, not counting the ones
-    that already overlap the box of ``half`` around ``p`` (they hide it from every side alike)."""
+def _blocked_many(solid, p, steps, half) -> np.ndarray:
+    """For each sight line from ``p`` (float (3,)) to ``p + steps[i]`` (float (k, 3)): the solid
+    boxes it crosses (:func:`crossed_boxes` of a point, same arithmetic), not counting the ones
+    that already overlap the box of ``half`` around ``p`` (they hide it from every side alike),
+    capped at 3 and divided by 3. float64 (k,)."""
     own = ((solid[:, :3] < p + half) & (solid[:, 3:] > p - half)).all(axis=1)
-    n = len(crossed_boxes(solid[~own], p, q, np.zeros(3)))
-    return min(n, 3) / 3.0
+    boxes = solid[~own]
+    if not len(boxes):
+        return np.zeros(len(steps))
+    lo, hi = boxes[None, :, :3], boxes[None, :, 3:]  # grown by a zero half: unchanged
+    d = ((p + steps) - p)[:, None, :]
+    inside = (p > lo) & (p < hi)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        t1, t2 = (lo - p) / d, (hi - p) / d
+        tin = np.where(d == 0, np.where(inside, -np.inf, np.inf), np.minimum(t1, t2))
+        tout = np.where(d == 0, np.where(inside, np.inf, -np.inf), np.maximum(t1, t2))
+    enter, leave = tin.max(axis=2), tout.min(axis=2)
+    n = ((enter < leave) & (leave > 0) & (enter < 1)).sum(axis=1)
+    return np.minimum(n, 3) / 3.0

@@ -13,8 +13,13 @@ from collections import OrderedDict
 from dataclasses import dataclass
 
 import numpy as np
-import pyvista as pv
-from vtkmodules.vtkRenderingCore import vtkRenderer
+
+from resweep.app.scene.deferred_imports import defer_plot_modules
+
+defer_plot_modules()  # before pyvista's plotting module loads
+
+import pyvista as pv  # noqa: E402
+from vtkmodules.vtkRenderingCore import vtkRenderer  # noqa: E402
 
 from resweep.app.scene import style as S
 from resweep.app.scene.story import tell_story
@@ -82,6 +87,8 @@ class Viewport:
         self._actors = {}
         self._preset = "story"
         self.story = None           # Story of the focused column (scene/story.py)
+        self._story_state = None    # the state, and (session, column, world version), the story
+        self._story_key = None      # was told for
         self.inset = None           # MagnifiedView, made by enable_inset()
         self.locked_dir = None      # float (3,): the "story" preset keeps this direction (animations)
         self.whole_world = False    # fit(): draw the whole world (up to WHOLE_WORLD_MAX voxels out)
@@ -345,7 +352,11 @@ class Viewport:
         self._draw_passes(state, col, active, options, drawn, bounds)
         self._draw_lines(state, col, active, options, drawn)
         self._draw_others(state, col, options, drawn)
-        self.story = tell_story(self.session, state, col) if active else None
+        # A picture shows each state twice (before and after pointing the camera): one story.
+        key = (self.session, col, world.version)
+        if self._story_state is not state or self._story_key != key:
+            self.story = tell_story(self.session, state, col) if active else None
+            self._story_state, self._story_key = state, key
         self._draw_story(self.story, drawn)
         vs = world.voxel_size
         if self.story is not None:

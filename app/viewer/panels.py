@@ -38,6 +38,7 @@ class EntitiesPanel(QWidget):
         self.flags: TraceFlags | None = None
         self._ids: list[int] = []
         self._syncing = False
+        self._shown = None
         self.table = QTableWidget(0, 2 + len(KINDS), self)
         self.table.setObjectName("entities")
         for c, text in enumerate(["id", "name"] + [short(k) for k in KINDS]):
@@ -79,6 +80,7 @@ class EntitiesPanel(QWidget):
 
     def set_trace(self, ids, names, flags: TraceFlags):
         self.flags = flags
+        self._shown = None  # counts on screen, int64 (N, kinds)
         self._ids = [int(i) for i in ids]
         self._syncing = True
         self.table.setRowCount(len(self._ids))
@@ -99,26 +101,35 @@ class EntitiesPanel(QWidget):
             self._refresh_timer.start()
 
     def refresh_counts(self):
+        """Show the counts so far; only rows whose counts moved since the last call are touched
+        (the counts themselves are kept up to date block by block by ``TraceFlags``)."""
         if self.flags is None:
             return
-        for r in range(len(self._ids)):
-            counts = self.flags.counts(r)
-            worst = 0
-            for c, k in enumerate(KINDS):
-                n = counts[k]
-                it = self.table.item(r, 2 + c)
-                it.setText(str(n) if n else "·")
-                it.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-                rank = SEVERITY_RANK[SEVERITY[k]]
-                it.setForeground(QBrush(SEVERITY_COLOURS[rank] if n else QColor("#5d6a74")))
-                if n:
-                    worst = max(worst, rank)
-            self.table.item(r, self.ID).setForeground(QBrush(SEVERITY_COLOURS[worst] if worst else QColor("#d9e2e8")))
-        total = int((self.flags.flags != 0).sum())
-        done = int(self.flags.solved.sum())
-        self.summary.setText(f"{len(self._ids)} entities · {total} diverging entity-frames"
+        table = self.flags.count_table()
+        shown = self._shown
+        changed = range(len(self._ids)) if shown is None or shown.shape != table.shape else \
+            np.flatnonzero((table != shown).any(axis=1))
+        for r in changed:
+            self._show_counts(int(r), table[r])
+        self._shown = table.copy()
+        done = self.flags.solved_count
+        self.summary.setText(f"{len(self._ids)} entities · {self.flags.diverging_count} diverging entity-frames"
                              + ("" if self.flags.complete else f" · {done}/{self.flags.frame_count} frames solved"))
-        self._apply_filter()
+        if len(changed) or shown is None:
+            self._apply_filter()
+
+    def _show_counts(self, r: int, counts):
+        worst = 0
+        for c, k in enumerate(KINDS):
+            n = int(counts[c])
+            it = self.table.item(r, 2 + c)
+            it.setText(str(n) if n else "·")
+            it.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+            rank = SEVERITY_RANK[SEVERITY[k]]
+            it.setForeground(QBrush(SEVERITY_COLOURS[rank] if n else QColor("#5d6a74")))
+            if n:
+                worst = max(worst, rank)
+        self.table.item(r, self.ID).setForeground(QBrush(SEVERITY_COLOURS[worst] if worst else QColor("#d9e2e8")))
 
     def show_frame(self, flags, active):
         """Mark who diverges at the current frame (bold, in its worst severity) and who is inactive

@@ -7,17 +7,19 @@ a single error frame in a million still shows. Zoom with the wheel, or drag with
 """
 from __future__ import annotations
 
+import functools
 import math
 
 import numpy as np
 from PyQt6.QtCore import QElapsedTimer, QPointF, QRectF, Qt, QTimer, pyqtSignal
-from PyQt6.QtGui import QColor, QIcon, QPainter, QPainterPath, QPen, QPixmap, QPolygonF
+from PyQt6.QtGui import QColor, QIcon, QImage, QPainter, QPainterPath, QPen, QPixmap, QPolygonF
 from PyQt6.QtWidgets import QComboBox, QHBoxLayout, QLabel, QSizePolicy, QToolButton, QVBoxLayout, QWidget
 
 from resweep.core.check.kinds import KINDS, kind_mask
 
 from resweep.app.viewer.playback import RATES, Playback
 from resweep.app.viewer.flags import UNSOLVED, TraceFlags
+from resweep.app.viewer.strip_model import StripBins
 
 # The viewer's palette (our own): slate background, teal accent, severities warm to cool.
 INK = QColor("#d9e2e8")
@@ -111,6 +113,26 @@ def time_label(t: float, step: float) -> str:
     return f"{t:.{dec}f} s"
 
 
+def _image_pixels(img: QImage) -> np.ndarray:
+    """uint32 (height, width) view of a 32-bit ``img``'s own pixels: writes show in the image."""
+    ptr = img.bits()
+    ptr.setsize(img.sizeInBytes())
+    return np.frombuffer(ptr, np.uint32).reshape(img.height(), img.bytesPerLine() // 4)[:, :img.width()]
+
+
+@functools.cache
+def _strip_columns() -> np.ndarray:
+    """uint32 (5, STRIP_H): one pixel column of the strip per severity -1..3 (index severity + 1):
+    the groove with a full-height bar for a divergence, a thin centred bar otherwise."""
+    h = TimeStrip.STRIP_H
+    out = np.full((5, h), GROOVE.rgb(), np.uint32)
+    for v in range(UNSOLVED, 4):
+        bar = h if v > 0 else int(round(h * 0.35))
+        y = (h - bar) // 2
+        out[v - UNSOLVED, y:y + bar] = SEVERITY_COLOURS[v].rgb()
+    return out
+
+
 class TimeStrip(QWidget):
     """Ruler, divergence strip and cursor over the visible frame range ``[view0, view1)``."""
 
@@ -124,6 +146,9 @@ class TimeStrip(QWidget):
         self.view0, self.view1 = 0, 1
         self._drag_select: tuple[int, int] | None = None
         self._scrubbing = False
+        self.bins = StripBins()
+        self._img: QImage | None = None
+        self._img_px = None
         self.setMinimumHeight(self.RULER_H + self.STRIP_H + 8)
         self.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Fixed)
         self.setMouseTracking(True)
@@ -134,6 +159,7 @@ class TimeStrip(QWidget):
     def set_trace(self, time: np.ndarray, flags: TraceFlags):
         self.time = np.asarray(time, np.float64)
         self.flags = flags
+        self.bins = StripBins(flags)
         self.reset_zoom()
 
     # -- coordinates --------------------------------------------------------------------------
@@ -187,6 +213,21 @@ class TimeStrip(QWidget):
             return np.full(pixels, UNSOLVED, np.int8)
         return self.flags.strip(pixels, self.view0, self.view1, self.pb.strip_columns, self.pb.kind)
 
+    def _strip_image(self, pixels: int) -> QImage:
+        """The strip as an image ``pixels`` wide, redrawn only where the flags changed since the
+        last paint (a streamed block touches a few pixel columns; the image is kept and updated in
+        place, so painting costs the same on any trace length)."""
+        new_layout = self.bins.layout(pixels, self.view0, self.view1, self.pb.strip_columns, self.pb.kind)
+        if new_layout or self._img is None or self._img.width() != pixels:
+            self._img = QImage(max(1, pixels), self.STRIP_H, QImage.Format.Format_RGB32)
+            self._img_px = _image_pixels(self._img)
+            self.bins.invalidate()
+        moved = self.bins.refresh()
+        if moved is not None:
+            i0, i1 = moved
+            self._img_px[:, i0:i1] = _strip_columns()[self.bins.values[i0:i1] - UNSOLVED].T
+        return self._img
+
     def paintEvent(self, event):
         p = QPainter(self)
         p.fillRect(self.rect(), PANEL)
@@ -197,18 +238,7 @@ class TimeStrip(QWidget):
         x0, x1 = self._x0x1()
         self._paint_ruler(p, x0, x1)
         top = self.RULER_H + 2
-        p.fillRect(QRectF(x0, top, x1 - x0, self.STRIP_H), GROOVE)
-        px = int(x1 - x0)
-        vals = self.strip_values(px)
-        # Runs of equal colour painted as one rect keep a million-frame strip cheap.
-        edges = np.flatnonzero(np.diff(vals)) + 1
-        starts = np.concatenate([[0], edges])
-        ends = np.concatenate([edges, [len(vals)]])
-        for a, b in zip(starts, ends):
-            v = int(vals[a])
-            h = self.STRIP_H if v > 0 else self.STRIP_H * 0.35
-            y = top + (self.STRIP_H - h) / 2
-            p.fillRect(QRectF(x0 + a, y, b - a, h), SEVERITY_COLOURS[v])
+        p.drawImage(QPointF(x0, top), self._strip_image(int(x1 - x0)))
         if self._drag_select is not None:
             a, b = sorted(self._drag_select)
             sel = QColor(ACCENT)

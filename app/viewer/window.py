@@ -24,6 +24,7 @@ from resweep.app.viewer.panels import EntitiesPanel, FramePanel, SettingsPanel
 from resweep.app.viewer.playback import Playback
 from resweep.app.viewer.report_md import frame_facts, report_markdown, snapshot_command
 from resweep.app.viewer.flags import TraceFlags
+from resweep.app.viewer.resolve import ResolveFeed
 from resweep.app.viewer.hunt import HuntTools
 from resweep.app.viewer.follow import RecordingFollower
 from resweep.app.viewer.timeline import ACCENT, GROOVE, INK, PANEL, Timeline, draw_icon
@@ -57,7 +58,7 @@ class MainWindow(QMainWindow):
         self.worker = TraceWorker(session_factory or default_session_factory, self)
         self.follower = RecordingFollower(self)
         self._pending: dict = {}
-        self._solved_upto = 0
+        self.feed: ResolveFeed | None = None  # takes the background re-solve's results into the flags
         self._camera = "story"
         self._refreshing = False  # a frame is being solved off the GUI thread (see refresh_view)
         self._refresh_again = False
@@ -94,10 +95,11 @@ class MainWindow(QMainWindow):
         lay.setContentsMargins(0, 0, 0, 0)
         lay.setSpacing(0)
         if with_viewport:
+            from resweep.app.scene.viewport import ViewOptions, Viewport  # first: it defers pyplot
             from pyvistaqt import QtInteractor
-
-            from resweep.app.scene.viewport import ViewOptions, Viewport
-            self.plotter = QtInteractor(centre)
+            # No render timer: an idle software-GL view re-rendered 5 times a second burns a core
+            # the background re-solve needs; the window asks for a paint when the scene changes.
+            self.plotter = QtInteractor(centre, auto_update=False)
             self.plotter.setFocusPolicy(Qt.FocusPolicy.ClickFocus)
             # VTK's own letter keys (q/e quit, 3 stereo, s/w surface style...) would fight the
             # window's shortcuts; the window's actions still see every key first.
@@ -265,9 +267,10 @@ class MainWindow(QMainWindow):
         if focus is None and tr.frame_count:
             focus = session.default_column(frame)
         self.flags = TraceFlags(tr.frame_count, tr.entity_count)
-        self._solved_upto = 0
+        self.feed = ResolveFeed(self.flags)
         if self.viewport is not None:
             self.viewport.set_session(session)
+            self._redraw()
         self.entities.set_trace(tr.ids, tr.names, self.flags)
         self.timeline.set_trace(tr.time, self.flags)
         self.pb.adopt(tr.frame_count, tr.entity_count, frame, focus)
@@ -287,22 +290,20 @@ class MainWindow(QMainWindow):
     def _start_solve(self):
         if self.session is None:
             return
-        self.flags.reset()
-        self._solved_upto = 0
+        self.feed.restart()
         self.progress.setValue(0)
         self.worker.solve(self.session.path, self.pb.settings)
 
     # -- background results --------------------------------------------------------------------
-    def _on_block(self, blk):
-        if self.flags is not None:
-            self.flags.add_block(blk)
+    def _on_block(self, rows):
+        if self.feed is not None:
+            self.feed.rows(rows)
             self.timeline.strip.update()
             self.entities.schedule_refresh()
 
     def _on_progress(self, done, total):
-        if self.flags is not None and done > self._solved_upto:
-            self.flags.mark_solved(np.arange(self._solved_upto, min(done, self.flags.frame_count)))
-            self._solved_upto = done
+        if self.feed is not None:
+            self.feed.progress(done, total)
         self.progress.setMaximum(max(1, total))
         self.progress.setValue(done)
 
@@ -383,6 +384,7 @@ class MainWindow(QMainWindow):
             self.state = state
             if self.viewport is not None and col is not None:
                 self.viewport.show(self.state, col, self.view_options)
+                self._redraw()
             facts = frame_facts(self.session, self.state, col) if col is not None else None
         except Exception as exc:  # the GUI boundary: one line in the panel, the window stays usable
             self.frame_panel.show_facts(None, f"frame {self.pb.frame} cannot be shown: {error_line(exc)}")
@@ -402,14 +404,22 @@ class MainWindow(QMainWindow):
         self.view_options.show_trail = self.act_trail.isChecked()
         self.refresh_view()
 
+    def _redraw(self):
+        """Ask for one paint of the 3-D view (it renders there); paints asked for before it
+        happens merge into one."""
+        if self.plotter is not None:
+            self.plotter.update()
+
     def set_camera(self, preset: str):
         self._camera = preset
         if self.viewport is not None and self.state is not None:
             self.viewport.set_camera(preset)
+            self._redraw()
 
     def fit(self):
         if self.viewport is not None and self.state is not None:
             self.viewport.fit()
+            self._redraw()
 
     def focus_camera(self):
         self.set_camera("story")
@@ -433,6 +443,7 @@ class MainWindow(QMainWindow):
         from resweep.app.scene.caption import caption_lines
         from resweep.app.scene.picture import compose
         if self.plotter is not None:
+            self.plotter.render()  # the scene as it is now, even if its paint is still queued
             view = np.ascontiguousarray(self.plotter.screenshot(return_img=True)[..., :3])
         else:
             img = self.centralWidget().grab().toImage().convertToFormat(QImage.Format.Format_RGB888)

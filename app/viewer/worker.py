@@ -11,14 +11,11 @@ import threading
 
 from PyQt6.QtCore import QCoreApplication, QEventLoop, QObject, pyqtSignal, pyqtSlot
 
-from resweep.core.check.stream import check_trace
 from resweep.core.errors import ResweepError, printable
 from resweep.core.format.vet import vet
 from resweep.core.solve.settings import SolverSettings
-from resweep.core.format.reader import open_trace
 
-#: Entity-frames per streamed block: small enough that the strip fills in visibly on long traces.
-ROWS_PER_BLOCK = 1 << 15
+from resweep.app.viewer.resolve import resolve_trace
 
 
 def error_line(exc: BaseException) -> str:
@@ -78,7 +75,7 @@ class TraceWorker(QObject):
         loaded(session, path): a session object built by ``session_factory(path, settings)``.
         load_failed(path, message): the one-line reason the trace could not be opened.
         progress(done, total): frames solved so far of the current whole-trace solve.
-        block(BlockResult): one streamed segment of results.
+        block(FlagRows): the flags of one streamed segment of results.
         solved(TraceReport): the whole trace has been re-solved (not emitted when cancelled).
         solve_failed(message): the background solve stopped on an error.
         busy(bool): whether any job is running.
@@ -208,13 +205,9 @@ class TraceWorker(QObject):
 
     def _run_solve(self, job: _Job, path: str, settings: SolverSettings):
         try:
-            # A trace handle of its own: the GUI thread keeps reading frames from the session's.
-            with open_trace(path) as trace:
-                report = check_trace(
-                    trace, settings, limit=0,
-                    progress=lambda done, total: self._t_progress.emit(job.number, done, total),
-                    on_block=lambda b: self._t_block.emit(job.number, b),
-                    should_stop=job.stop.is_set, rows_per_block=ROWS_PER_BLOCK)
+            report = resolve_trace(path, settings, lambda rows: self._t_block.emit(job.number, rows),
+                                   lambda done, total: self._t_progress.emit(job.number, done, total),
+                                   should_stop=job.stop.is_set)
             if not report.cancelled:
                 self._t_solved.emit(job.number, report)
         except Exception as exc:

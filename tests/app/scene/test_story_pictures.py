@@ -169,3 +169,20 @@ def test_agreeing_row_has_no_magnified_view(snag, tmp_path):
             assert all(label != "measured error (magnified view)" for label, _ in vp.legend)
         finally:
             plotter.close()
+
+
+def test_sight_lines_of_every_direction_at_once_count_as_one_at_a_time():
+    """The view chooser counts the boxes each sight line crosses in one batch; each count must
+    equal crossed_boxes (Ericson 2005 slab test) of that one line, boxes around the start left out."""
+    from resweep.app.scene.story import _blocked_many, crossed_boxes
+    rng = np.random.default_rng(5)
+    lo = rng.integers(-4, 4, (60, 3)).astype(np.float64)
+    solid = np.concatenate([lo, lo + 1.0], axis=1)
+    half = np.array([0.3, 0.9, 0.3])
+    for p in (np.array([0.5, 0.5, 0.5]), np.array([0.0, 1.0, -2.0]), np.array([2.2, -1.3, 0.7])):
+        steps = rng.normal(size=(36, 3)) * 6.0
+        steps[0] = 0.0
+        steps[1, 1] = 0.0  # a line parallel to a slab
+        own = ((solid[:, :3] < p + half) & (solid[:, 3:] > p - half)).all(axis=1)
+        want = [min(len(crossed_boxes(solid[~own], p, p + s, np.zeros(3))), 3) / 3.0 for s in steps]
+        assert _blocked_many(solid, p, steps, half).tolist() == want

@@ -1,4 +1,5 @@
-"""TraceFlags: streamed blocks, severity per frame, per-pixel binning, divergence jumps.
+"""TraceFlags: streamed blocks, severity per frame, per-pixel binning, divergence jumps, and the
+summaries and strip pixels kept up to date block by block.
 
 The oracles here are written independently of the module: binning is checked against a
 brute-force loop that assigns each frame to the pixel ``floor(f * pixels / n)``, and severities
@@ -9,7 +10,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from resweep.app.viewer.flags import TraceFlags, bin_worst, severity_of
+from resweep.app.viewer.flags import TraceFlags, bin_pixels, bin_worst, pixels_of_frames, severity_of
+from resweep.app.viewer.strip_model import StripBins
 from resweep.core.check.kinds import KINDS, SEVERITY, SEVERITY_RANK
 from resweep.core.check.stream import BlockResult
 from resweep.core.check.rows import RowResults
@@ -123,3 +125,115 @@ def test_counts_and_reset(tf):
     assert t.diverging_columns().tolist() == [True, True, True]
     t.reset()
     assert not t.solved.any() and t.next_divergence(0) is None
+
+
+# -- incremental summaries: every summary kept block by block equals the one computed afresh from
+# the whole (F, N) array (brute force below, written from the definitions in the docstrings).
+
+def brute_severity(flags, solved, columns, kind_bits):
+    sev = []
+    for f in range(flags.shape[0]):
+        if not solved[f]:
+            sev.append(-1)
+            continue
+        bits = 0
+        for c in columns:
+            bits |= int(flags[f, c]) & kind_bits
+        sev.append(max([SEVERITY_RANK[SEVERITY[k]] for k in KINDS if bits & BIT[k]], default=0))
+    return sev
+
+
+def random_blocks(F, N, rng, density=0.05):
+    """Blocks of whole frames in order, ragged sizes, some rows inactive (absent)."""
+    f = 0
+    while f < F:
+        g = min(F, f + int(rng.integers(1, 9)))
+        fr, col = np.nonzero(rng.random((g - f, N)) < 0.8)
+        kinds = rng.integers(0, len(KINDS), len(fr))
+        fl = np.where(rng.random(len(fr)) < density, 1 << kinds, 0).astype(np.int32)
+        fl[rng.random(len(fr)) < density / 3] |= BIT["discontinuity"]
+        yield fr + f, col, fl, g
+        f = g
+
+
+def test_streamed_summaries_equal_a_fresh_computation():
+    rng = np.random.default_rng(7)
+    F, N = 97, 6
+    t = TraceFlags(F, N)
+    want = np.zeros((F, N), np.int32)
+    sel = (1, 4)
+    t.frame_severity(columns=sel)  # a subset summary made early is kept up to date too
+    for fr, col, fl, g in random_blocks(F, N, rng):
+        t.add_block(block(fr, col, fl))
+        t.mark_solved(np.arange(g))
+        want[fr, col] = fl
+        solved = np.arange(F) < g
+        for columns in (None, sel, (2,)):
+            cols = range(N) if columns is None else columns
+            for kind in (None, "tunneling", "discontinuity"):
+                bits = int(np.bitwise_or.reduce(list(BIT.values()))) if kind is None else BIT[kind]
+                assert t.frame_severity(columns, kind).tolist() == brute_severity(want, solved, cols, bits)
+        for c in range(N):
+            assert t.counts(c) == {k: int(np.count_nonzero(want[:, c] & BIT[k])) for k in KINDS}
+        assert t.diverging_count == int(np.count_nonzero(want))
+        assert t.solved_count == g and t.complete == (g == F)
+        assert t.diverging_columns().tolist() == (want != 0).any(axis=0).tolist()
+
+
+def test_overwriting_rows_keeps_counts_exact():
+    t = TraceFlags(4, 2)
+    t.add_block(block([0, 1, 2], [0, 0, 1], np.array([BIT["snag"], BIT["snag"], BIT["penetration"]], np.int32)))
+    t.set_frame(1, np.array([BIT["tunneling"], BIT["snag"]], np.int32), np.array([True, False]))
+    assert t.counts(0)["snag"] == 1 and t.counts(0)["tunneling"] == 1 and t.counts(1)["snag"] == 0
+    assert t.diverging_count == 3
+    assert t.next_divergence(0, kind="tunneling") == 1
+
+
+@pytest.mark.parametrize("n,pixels", [(1000, 37), (240, 240), (17, 50), (5, 3), (1, 9)])
+def test_pixels_of_frames_are_exactly_the_pixels_showing_them(n, pixels):
+    # brute force: which pixels does each frame show in (bin_worst's binning rule)
+    shows = [set() for _ in range(n)]
+    for i in range(pixels):
+        if pixels >= n:
+            shows[i * n // pixels].add(i)
+    if pixels < n:
+        for f in range(n):
+            shows[f].add(f * pixels // n)
+    for lo, hi in [(0, n), (0, 1), (n - 1, n), (n // 3, n // 2 + 1)]:
+        if hi <= lo:
+            continue
+        want = set().union(*shows[lo:hi])
+        i0, i1 = pixels_of_frames(lo, hi, n, pixels)
+        assert want == set(range(i0, i1))
+
+
+def test_partial_strip_equals_the_same_pixels_of_the_whole_strip():
+    rng = np.random.default_rng(3)
+    values = rng.integers(-1, 4, 1013).astype(np.int8)
+    for pixels in (7, 300, 1013, 2500):
+        whole = bin_worst(values, pixels)
+        for i0, i1 in [(0, pixels), (1, 2), (pixels // 3, pixels // 2 + 1), (pixels - 1, pixels)]:
+            part = bin_pixels(lambda a, b: values[a:b], len(values), pixels, i0, i1)
+            assert part.tolist() == whole[i0:i1].tolist()
+
+
+def test_strip_bins_follow_the_stream_touching_only_the_changed_pixels():
+    rng = np.random.default_rng(11)
+    F, N, P = 500, 4, 64
+    t = TraceFlags(F, N)
+    bins = StripBins(t)
+    bins.layout(P, 100, 400, columns=(0, 2), kind=None)
+    bins.refresh()
+    for fr, col, fl, g in random_blocks(F, N, rng, density=0.2):
+        t.add_block(block(fr, col, fl))
+        before = bins.values.copy()
+        moved = bins.refresh()
+        fresh = t.strip(P, 100, 400, columns=(0, 2))
+        assert bins.values.tolist() == fresh.tolist()
+        changed = np.flatnonzero(before != fresh)
+        if len(changed):  # every changed pixel lies in the range reported
+            assert moved is not None and moved[0] <= changed[0] and changed[-1] < moved[1]
+        if fr.max() < 100 or fr.min() >= 400:  # outside the visible frames: nothing to redo
+            assert moved is None
+    assert bins.layout(P, 0, F) and bins.refresh() == (0, P)
+    assert bins.values.tolist() == t.strip(P).tolist()
