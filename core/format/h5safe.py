@@ -166,6 +166,32 @@ class SafeFile:
         except H5_FAILURES as exc:
             raise self.fail(ds.name, f"cannot read data (truncated or corrupt?): {exc}") from None
 
+    def stored_digest(self, ds) -> bytes | None:
+        """Digest of ``ds`` as the file stores it: shape, dtype, layout, filter pipeline and the
+        raw (still compressed) bytes of every chunk, read without decoding them. Two datasets
+        with the same digest decode to the same array, so a decoded copy can be reused (a farm's
+        world cache). None for an unchunked dataset (nothing to save: it is stored uncompressed).
+        """
+        import hashlib
+        h = hashlib.blake2b(digest_size=20)
+        try:
+            plist = ds.id.get_create_plist()
+            pipeline = [plist.get_filter(k)[:3] for k in range(plist.get_nfilters())]
+            h.update(repr((ds.shape, ds.dtype.str, ds.chunks, pipeline, ds.fillvalue)).encode())
+            if ds.chunks is None:
+                return None
+            spots = []
+            ds.id.chunk_iter(lambda info: spots.append(info.chunk_offset))
+            for spot in spots:
+                mask, data = ds.id.read_direct_chunk(spot)
+                h.update(repr((spot, mask, len(data))).encode())
+                h.update(data)
+        except TraceFormatError:
+            raise
+        except H5_FAILURES as exc:
+            raise self.fail(ds.name, f"cannot read stored chunks (truncated or corrupt?): {exc}") from None
+        return h.digest()
+
     def read_strings(self, ds) -> tuple[str, ...]:
         """The strings of ``ds``, each escaped and cut by :func:`printable` (they reach reports)."""
         try:

@@ -22,10 +22,12 @@ from __future__ import annotations
 
 import json
 import os
+import queue
 import signal
 import subprocess
 import sys
 import tempfile
+import threading
 import time
 from dataclasses import dataclass
 from pathlib import Path
@@ -46,8 +48,8 @@ CPU_ENV = "RESWEEP_VET_CPU"
 BASE_ADDRESS_SPACE = 1 << 30
 #: Environment variable: "0" turns isolation off (tests of the in-process path; not for users).
 ISOLATE_ENV = "RESWEEP_ISOLATE"
-#: Entries kept in the cache file (oldest dropped first).
-CACHE_ENTRIES = 256
+#: Entries kept in the cache file (oldest dropped first): a night's soak folder fits.
+CACHE_ENTRIES = 4096
 _DROP_ENV = ("HDF5_PLUGIN_PATH", "HDF5_VOL_CONNECTOR", "HDF5_DRIVER", "HDF5_DRIVER_CONFIG", "PYTHONSTARTUP",
              "PYTHONINSPECT")
 
@@ -73,46 +75,142 @@ def vet(path, use_cache: bool = True) -> None:
     A file the validator accepts is then opened normally by the caller. With ``RESWEEP_ISOLATE=0``
     nothing is done (the caller's own open still validates, without isolation).
     """
+    err = vet_many([path], use_cache)[str(path)]
+    if err is not None:
+        raise err
+
+
+def vet_many(paths, use_cache: bool = True) -> dict:
+    """Validate many files, in order, in as few isolated children as possible.
+
+    One child validates the files one after the other, each with its own CPU-time and wall-time
+    limits; a file that kills or hangs the child is refused with the reason, and the files after
+    it go on in a new child. Returns ``{str(path): None or TraceFormatError}`` (the error's
+    :meth:`~TraceFormatError.one_line` names the file). With ``RESWEEP_ISOLATE=0`` every file is
+    accepted unchecked.
+    """
+    paths = [str(p) for p in paths]
+    out: dict = {p: None for p in paths}
     if os.environ.get(ISOLATE_ENV, "1") == "0":
-        return
-    path = str(path)
-    try:
-        st = os.stat(path)
-    except OSError as exc:
-        raise TraceFormatError(path, None, f"cannot open: {exc.strerror or exc}") from None
-    if not os.path.isfile(path):
-        raise TraceFormatError(path, None, "is a directory, not a trace file" if os.path.isdir(path)
-                               else "is not a regular file")
-    key = _cache_key(path, st)
-    got = _cache_get(key) if use_cache else None
-    if got is None:
-        got = _run_child(path)
-        if use_cache:
-            _cache_put(key, got)
-    if not got.ok:
-        raise TraceFormatError(path, got.dataset, got.reason)
+        return out
+    cache = _cache_load() if use_cache else {}
+    todo, keys = [], {}
+    for path in dict.fromkeys(paths):
+        try:
+            st = os.stat(path)
+        except OSError as exc:
+            out[path] = TraceFormatError(path, None, f"cannot open: {exc.strerror or exc}")
+            continue
+        if not os.path.isfile(path):
+            out[path] = TraceFormatError(path, None, "is a directory, not a trace file" if os.path.isdir(path)
+                                         else "is not a regular file")
+            continue
+        keys[path] = _cache_key(path, st)
+        got = _as_verdict(cache.get(keys[path]))
+        if got is None:
+            todo.append(path)
+        else:
+            out[path] = _error(path, got)
+    found = _run_children(todo)
+    for path, v in found.items():
+        out[path] = _error(path, v)
+    if use_cache and found:
+        _cache_put({keys[p]: v for p, v in found.items()})
+    return out
 
 
-def _run_child(path: str) -> Verdict:
+def _error(path: str, v: Verdict):
+    return None if v.ok else TraceFormatError(path, v.dataset, v.reason)
+
+
+def _run_children(paths: list) -> dict:
+    """Verdicts of ``paths``: children started one after another until every path has one."""
+    out = {}
+    while len(out) < len(paths):
+        rest = paths[len(out):]
+        got = _run_child(rest)
+        out.update(zip(rest, got))
+    return out
+
+
+def _run_child(paths: list) -> list:
+    """Verdicts of the first paths of ``paths`` that one child got through: all of them, or those
+    before the one it died or hung on, then that one's refusal."""
     env = {k: v for k, v in os.environ.items() if k not in _DROP_ENV}
-    env.update(HDF5_PLUGIN_PRELOAD="::", OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", MKL_NUM_THREADS="1", PYTHONDONTWRITEBYTECODE="1")
+    env.update(HDF5_PLUGIN_PRELOAD="::", OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", MKL_NUM_THREADS="1",
+               PYTHONDONTWRITEBYTECODE="1")
     cpu, mem = int(os.environ.get(CPU_ENV, CPU_SECONDS)), address_space_limit()
+    wall = cpu * 2 + 30
     cmd = [sys.executable, "-c", "import sys; from resweep.core.format.vet_child import main; sys.exit(main())",
-           path, str(cpu), str(mem)]
+           str(cpu), str(mem)]
+    got: list = []
     try:
-        proc = subprocess.run(cmd, env=env, stdin=subprocess.DEVNULL, capture_output=True, timeout=cpu * 2 + 30)
-    except subprocess.TimeoutExpired:
-        return Verdict(False, reason=f"corrupt or hostile file: the isolated validator hit its wall-time limit "
-                                     f"of {cpu * 2 + 30} s; refused")
+        with tempfile.TemporaryFile() as err:
+            proc = subprocess.Popen(cmd, env=env, stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=err)
+            lines = _lines(proc, paths)
+            try:
+                while len(got) < len(paths):
+                    try:
+                        line = lines.get(timeout=wall)
+                    except queue.Empty:
+                        proc.kill()
+                        got.append(Verdict(False, reason=f"corrupt or hostile file: the isolated validator hit "
+                                                         f"its wall-time limit of {wall} s; refused"))
+                        break
+                    if line is None:  # the child ended before answering for this path
+                        proc.wait()
+                        err.seek(0)
+                        got.append(_death(proc.returncode, err.read(), cpu, mem))
+                        break
+                    got.append(_answer(line))
+            finally:
+                if proc.poll() is None:
+                    proc.kill()
+                proc.wait()
     except OSError as exc:
-        return Verdict(False, reason=f"cannot start the isolated validator: {exc}")
-    return _verdict(proc, cpu, mem)
+        got.append(Verdict(False, reason=f"cannot start the isolated validator: {exc}"))
+    return got
 
 
-def _verdict(proc, cpu: int, mem: int) -> Verdict:
-    rc = proc.returncode
-    lines = proc.stdout.decode("utf-8", "replace").strip().splitlines()
-    if rc < 0:
+def _lines(proc, paths) -> "queue.Queue":
+    """Feed ``paths`` to the child and hand its output lines over a queue (None at the end), so the
+    parent can wait for each with a timeout."""
+    q: queue.Queue = queue.Queue()
+
+    def feed():
+        try:
+            proc.stdin.write("".join(json.dumps(p) + "\n" for p in paths).encode())
+            proc.stdin.close()
+        except OSError:  # the child died early: its exit status says why
+            pass
+
+    def read():
+        for line in proc.stdout:
+            q.put(line)
+        q.put(None)
+
+    for fn in (feed, read):
+        threading.Thread(target=fn, daemon=True, name="resweep-vet").start()
+    return q
+
+
+def _answer(line: bytes) -> Verdict:
+    """The verdict of one output line of the child."""
+    try:
+        doc = json.loads(line.decode("utf-8", "replace"))
+        if doc.get("ok"):
+            return Verdict(True)
+        if doc.get("memory"):
+            return Verdict(False, reason=f"corrupt or hostile file: the isolated validator hit the "
+                                         f"address-space limit of {address_space_limit() >> 20} MiB; refused")
+        return Verdict(False, doc.get("line", ""), doc.get("dataset"), str(doc.get("reason", "refused")))
+    except (ValueError, AttributeError):
+        return Verdict(False, reason="the isolated validator answered something unreadable; refused")
+
+
+def _death(rc: int, stderr: bytes, cpu: int, mem: int) -> Verdict:
+    """The refusal of the path a child was on when it ended (by a signal, or an error of its own)."""
+    if rc is not None and rc < 0:
         sig = -rc
         name = signal.Signals(sig).name if sig in signal.valid_signals() else f"signal {sig}"
         why = {signal.SIGXCPU: f"hit the CPU-time limit of {cpu} s",
@@ -121,18 +219,7 @@ def _verdict(proc, cpu: int, mem: int) -> Verdict:
                signal.SIGABRT: f"aborted (SIGABRT; possibly at the address-space limit of {mem >> 20} MiB)",
                signal.SIGBUS: "crashed (SIGBUS) reading the file"}.get(sig, f"died by {name}")
         return Verdict(False, reason=f"corrupt or hostile file: the isolated validator {why}; refused")
-    if lines:
-        try:
-            doc = json.loads(lines[-1])
-            if doc.get("ok"):
-                return Verdict(True)
-            if doc.get("memory"):
-                return Verdict(False, reason=f"corrupt or hostile file: the isolated validator hit the "
-                                             f"address-space limit of {mem >> 20} MiB; refused")
-            return Verdict(False, doc.get("line", ""), doc.get("dataset"), str(doc.get("reason", "refused")))
-        except (ValueError, AttributeError):
-            pass
-    err = proc.stderr.decode("utf-8", "replace").strip().splitlines()
+    err = stderr.decode("utf-8", "replace").strip().splitlines()
     tail = printable(err[-1]) if err else "no output"
     return Verdict(False, reason=f"the isolated validator failed (exit status {rc}: {tail}); refused")
 
@@ -162,8 +249,8 @@ def _cache_load() -> dict:
         return {}
 
 
-def _cache_get(key: str) -> Verdict | None:
-    got = _cache_load().get(key)
+def _as_verdict(got) -> Verdict | None:
+    """A cached entry as a Verdict (None when absent or not understood)."""
     if not isinstance(got, dict):
         return None
     try:
@@ -172,10 +259,13 @@ def _cache_get(key: str) -> Verdict | None:
         return None
 
 
-def _cache_put(key: str, v: Verdict) -> None:
-    """Add one verdict; written to a temporary file then renamed over the cache (atomic)."""
+def _cache_put(verdicts: dict) -> None:
+    """Add verdicts (cache key -> Verdict); written to a temporary file then renamed over the
+    cache (atomic; parallel writers may lose each other's entries, which only costs a re-check)."""
     doc = _cache_load()
-    doc[key] = {"ok": v.ok, "line": v.line, "dataset": v.dataset, "reason": v.reason, "at": time.time()}
+    now = time.time()
+    for key, v in verdicts.items():
+        doc[key] = {"ok": v.ok, "line": v.line, "dataset": v.dataset, "reason": v.reason, "at": now}
     if len(doc) > CACHE_ENTRIES:
         for k in sorted(doc, key=lambda k: doc[k].get("at", 0) if isinstance(doc[k], dict) else 0)[:len(doc) - CACHE_ENTRIES]:
             del doc[k]

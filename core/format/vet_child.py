@@ -1,20 +1,33 @@
 """The child side of the isolated first open (see ``vet.py``): limits itself, then validates.
 
-Run as ``python -c "...vet_child import main..." PATH CPU_SECONDS ADDRESS_SPACE_BYTES``. Prints one
-JSON line: ``{"ok": true}`` or ``{"ok": false, "dataset": ..., "reason": ...}`` (``"memory": true``
-when the address-space limit stopped it). Imports only numpy, h5py and resweep.core.format.
+Run as ``python -c "...vet_child import main..." CPU_SECONDS ADDRESS_SPACE_BYTES`` with the paths
+to validate on standard input, one JSON string a line. For each path, in order, it prints one
+JSON line and flushes it: ``{"ok": true}`` or ``{"ok": false, "dataset": ..., "reason": ...}``
+(``"memory": true`` when the address-space limit stopped it). Each path gets ``CPU_SECONDS`` of
+CPU time of its own (the soft limit is moved on before each one), so the parent knows from the
+lines printed which path a child that died was on. Worlds stored identically are decoded once
+(a soak folder's traces share one). Imports only numpy, h5py and resweep.core.format.
 """
 from __future__ import annotations
 
 import json
+import resource
 import sys
 
 
-def _limit_self(cpu: int, mem: int) -> None:
-    import resource
-    resource.setrlimit(resource.RLIMIT_CPU, (cpu, cpu + 5))  # SIGXCPU at cpu, SIGKILL at the hard limit
+def _limit_self(cpu: int, mem: int, count: int) -> None:
+    hard = cpu * max(1, count) + 5
+    resource.setrlimit(resource.RLIMIT_CPU, (cpu, hard))  # SIGXCPU at the soft limit, SIGKILL at the hard
     resource.setrlimit(resource.RLIMIT_AS, (mem, mem))
     resource.setrlimit(resource.RLIMIT_CORE, (0, 0))
+
+
+def _cpu_for_next(cpu: int) -> None:
+    """Give the next path ``cpu`` seconds from now (never past the hard limit set at start)."""
+    used = resource.getrusage(resource.RUSAGE_SELF)
+    now = int(used.ru_utime + used.ru_stime) + 1
+    _, hard = resource.getrlimit(resource.RLIMIT_CPU)
+    resource.setrlimit(resource.RLIMIT_CPU, (min(now + cpu, hard), hard))
 
 
 def _no_plugins() -> None:
@@ -26,11 +39,11 @@ def _no_plugins() -> None:
         h5pl.remove(0)
 
 
-def validate(path: str) -> dict:
+def validate(path: str, worlds=None) -> dict:
     from resweep.core.errors import TraceFormatError
     from resweep.core.format.reader import open_trace
     try:
-        with open_trace(path) as trace:
+        with open_trace(path, worlds=worlds) as trace:
             for _ in trace.iter_frames():
                 pass
     except TraceFormatError as exc:
@@ -40,13 +53,19 @@ def validate(path: str) -> dict:
 
 def main(argv=None) -> int:
     argv = sys.argv[1:] if argv is None else argv
-    path, cpu, mem = argv[0], int(argv[1]), int(argv[2])
-    _limit_self(cpu, mem)
-    try:
-        _no_plugins()
-        doc = validate(path)
-    except MemoryError:
-        doc = {"ok": False, "memory": True}
-    sys.stdout.write(json.dumps(doc) + "\n")
-    sys.stdout.flush()
+    cpu, mem = int(argv[0]), int(argv[1])
+    paths = [json.loads(line) for line in sys.stdin if line.strip()]
+    _limit_self(cpu, mem, len(paths))
+    _no_plugins()
+    from resweep.core.world.world_cache import WorldCache
+    worlds = WorldCache(max_bytes=mem // 4)
+    for path in paths:
+        _cpu_for_next(cpu)
+        try:
+            doc = validate(str(path), worlds)
+        except MemoryError:
+            doc = {"ok": False, "memory": True}
+            worlds = WorldCache(max_bytes=mem // 4)
+        sys.stdout.write(json.dumps(doc) + "\n")
+        sys.stdout.flush()
     return 0

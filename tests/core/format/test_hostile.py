@@ -142,7 +142,7 @@ def test_isolated_validator_accepts_a_good_trace_once(good, tmp_path, monkeypatc
     import os
     os.utime(good, ns=(1, 1))  # another modification time: validated again
     vetmod.vet(good)
-    assert calls == [str(good)]
+    assert calls == [[str(good)]]
 
 
 def test_max_option_raises_a_limit_and_rejects_unknown_names(tmp_path, monkeypatch, capsys):
@@ -159,3 +159,26 @@ def test_max_option_raises_a_limit_and_rejects_unknown_names(tmp_path, monkeypat
     with pytest.raises(SystemExit) as ei:
         main(["info", "--max", "bogus=3", str(path)])
     assert ei.value.code == 2 and "unknown limit 'bogus=3'" in capsys.readouterr().err
+
+
+def test_one_child_validates_a_batch_and_a_hang_in_it_costs_only_that_file(good, tmp_path, monkeypatch):
+    """vet_many (farm workers): one child for the batch; the file that hangs HDF5 is refused with
+    the limit it hit, the files after it go on in a second child."""
+    monkeypatch.setenv("RESWEEP_VET_CACHE", str(tmp_path / "vetted.json"))
+    monkeypatch.setenv(vetmod.CPU_ENV, "2")
+    import shutil
+    other = shutil.copy(good, tmp_path / "other.h5")
+    hang = H.heap_size_zero(good, tmp_path / "heap.h5")
+    notes = tmp_path / "notes.h5"
+    notes.write_text("not a trace\n")
+    calls = []
+    real = vetmod._run_child
+    monkeypatch.setattr(vetmod, "_run_child", lambda p: calls.append(list(p)) or real(p))
+    got = vetmod.vet_many([good, hang, other, notes])
+    assert calls == [[str(good), str(hang), str(other), str(notes)], [str(other), str(notes)]]
+    assert got[str(good)] is None and got[str(other)] is None
+    for path, word in ((hang, "limit"), (notes, "HDF5")):
+        line = got[str(path)].one_line()
+        assert line.startswith(str(path)) and word in line and "\n" not in line
+    calls.clear()
+    assert vetmod.vet_many([good, hang, other])[str(hang)] is not None and calls == []  # cached verdicts
