@@ -115,8 +115,9 @@ def check_batch(jobs, options: FarmOptions, should_stop=None, report=None) -> li
     """:func:`check_part` for each ``(path, frames)`` of ``jobs`` in turn (one task for many small
     traces); stops early, leaving the rest out of the result, when ``should_stop()`` is True.
 
-    Whole traces are first validated by the isolated validator (``format.vet.vet_many``: one
-    limited child process for the batch, so a hostile file cannot hang or crash this worker);
+    Whole traces are first validated by the isolated validator (``format.vet.vet_many``: a
+    limited child process that this worker keeps for batch after batch, so a hostile file cannot
+    hang or crash the worker and no batch pays for starting a child);
     a refused trace comes back with its one-line reason. Ranges of a split trace are not vetted
     again: the task that planned them vetted the file.
 
@@ -125,7 +126,7 @@ def check_batch(jobs, options: FarmOptions, should_stop=None, report=None) -> li
     """
     from resweep.core.format.vet import vet_many
     configure(options)
-    refused = vet_many([path for path, frames in jobs if frames is None])
+    refused = vet_many([path for path, frames in jobs if frames is None], keep=True)
     out = []
     done = [0, 0]  # traces finished, entity-frames of finished parts
 

@@ -52,6 +52,7 @@ class SafeFile:
         if not is_h5:
             raise TraceFormatError(path, None, "not an HDF5 file (no HDF5 signature)")
         self.swmr = bool(swmr)
+        self._groups: dict = {}  # path -> group reached through hard links, for later lookups under it
         try:
             self.file = h5py.File(self.path, "r", locking=False, swmr=self.swmr)
         except H5_FAILURES as exc:
@@ -84,7 +85,11 @@ class SafeFile:
         node = self.file
         parts = [p for p in name.split("/") if p]
         walked = ""
-        for i, part in enumerate(parts):
+        first = 0
+        head = self._groups.get("/" + "/".join(parts[:-1])) if len(parts) > 1 else None
+        if head is not None:  # the parent group was walked already: every link on its path is checked
+            node, first, walked = head, len(parts) - 1, "/" + "/".join(parts[:-1])
+        for i, part in enumerate(parts[first:], first):
             walked += "/" + part
             try:
                 link = node.get(part, getlink=True)
@@ -106,6 +111,8 @@ class SafeFile:
                 node = node[part]
             except H5_FAILURES as exc:
                 raise self.fail(walked, f"cannot open object (truncated or corrupt?): {exc}") from None
+        if isinstance(node, h5py.Group):
+            self._groups[walked] = node  # reached through hard links only (soft ones returned above)
         return node
 
     def group(self, name: str, required: bool = True):

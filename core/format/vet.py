@@ -6,8 +6,8 @@ So before a trace is opened in the user's process, :func:`vet` runs the whole va
 reader's checks, every frame block) in a child process started afresh (``subprocess``, not a
 fork of this one) with
 
-- an address-space limit (``RLIMIT_AS``) and a CPU-time limit (``RLIMIT_CPU``), plus a wall-clock
-  timeout in case the child blocks without using CPU;
+- an address-space limit (``RLIMIT_AS``) and a CPU-time limit per file (``RLIMIT_CPU``, moved on
+  before each file), plus a wall-clock timeout per file in case the child blocks without using CPU;
 - HDF5 dynamic filter plugins disabled: ``HDF5_PLUGIN_PATH`` and ``HDF5_VOL_CONNECTOR`` removed
   from its environment, ``HDF5_PLUGIN_PRELOAD=::`` (HDF5's switch that turns plugin loading off)
   set, and h5py's plugin search path cleared;
@@ -17,6 +17,10 @@ A child that dies by a signal or hits a limit becomes one :class:`TraceFormatErr
 and the limit or signal. Results are cached by path, size, modification time, limits and a
 version of the validator in a small JSON file in the user cache folder (written atomically), so
 re-opening the same file does not pay twice.
+
+:func:`vet_many` validates a batch in one child, file after file (a farm worker keeps that child
+for its next batch): starting Python with numpy and h5py costs about 0.3 s, several times the
+validation of a small trace.
 """
 from __future__ import annotations
 
@@ -80,12 +84,13 @@ def vet(path, use_cache: bool = True) -> None:
         raise err
 
 
-def vet_many(paths, use_cache: bool = True) -> dict:
+def vet_many(paths, use_cache: bool = True, keep: bool = False) -> dict:
     """Validate many files, in order, in as few isolated children as possible.
 
     One child validates the files one after the other, each with its own CPU-time and wall-time
     limits; a file that kills or hangs the child is refused with the reason, and the files after
-    it go on in a new child. Returns ``{str(path): None or TraceFormatError}`` (the error's
+    it go on in a new child. ``keep`` leaves the child running for the next call of this process
+    (a farm worker validates batch after batch without starting a child per batch). Returns ``{str(path): None or TraceFormatError}`` (the error's
     :meth:`~TraceFormatError.one_line` names the file). With ``RESWEEP_ISOLATE=0`` every file is
     accepted unchecked.
     """
@@ -111,7 +116,7 @@ def vet_many(paths, use_cache: bool = True) -> dict:
             todo.append(path)
         else:
             out[path] = _error(path, got)
-    found = _run_children(todo)
+    found = _run_children(todo, keep)
     for path, v in found.items():
         out[path] = _error(path, v)
     if use_cache and found:
@@ -123,75 +128,104 @@ def _error(path: str, v: Verdict):
     return None if v.ok else TraceFormatError(path, v.dataset, v.reason)
 
 
-def _run_children(paths: list) -> dict:
-    """Verdicts of ``paths``: children started one after another until every path has one."""
+def _run_children(paths: list, keep: bool = False) -> dict:
+    """Verdicts of ``paths``, asked one by one of a child; a child that dies or hangs on a path is
+    replaced for the next. ``keep``: leave the last child running for this process's next call
+    (farm workers; its stdin closing when this process ends makes it exit)."""
+    global _kept
     out = {}
-    while len(out) < len(paths):
-        rest = paths[len(out):]
-        got = _run_child(rest)
-        out.update(zip(rest, got))
+    with _kept_lock:
+        child = _kept if keep and _kept is not None and _kept.fits() else None
+        _kept = None
+        try:
+            for path in paths:
+                if child is None:
+                    child = _start()
+                out[path] = child.ask(path)
+                if not child.alive:
+                    child = None
+        finally:
+            if child is not None:
+                if keep:
+                    _kept = child
+                else:
+                    child.close()
     return out
 
 
-def _run_child(paths: list) -> list:
-    """Verdicts of the first paths of ``paths`` that one child got through: all of them, or those
-    before the one it died or hung on, then that one's refusal."""
-    env = {k: v for k, v in os.environ.items() if k not in _DROP_ENV}
-    env.update(HDF5_PLUGIN_PRELOAD="::", OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", MKL_NUM_THREADS="1",
-               PYTHONDONTWRITEBYTECODE="1")
-    cpu, mem = int(os.environ.get(CPU_ENV, CPU_SECONDS)), address_space_limit()
-    wall = cpu * 2 + 30
-    cmd = [sys.executable, "-c", "import sys; from resweep.core.format.vet_child import main; sys.exit(main())",
-           str(cpu), str(mem)]
-    got: list = []
-    try:
-        with tempfile.TemporaryFile() as err:
-            proc = subprocess.Popen(cmd, env=env, stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=err)
-            lines = _lines(proc, paths)
-            try:
-                while len(got) < len(paths):
-                    try:
-                        line = lines.get(timeout=wall)
-                    except queue.Empty:
-                        proc.kill()
-                        got.append(Verdict(False, reason=f"corrupt or hostile file: the isolated validator hit "
-                                                         f"its wall-time limit of {wall} s; refused"))
-                        break
-                    if line is None:  # the child ended before answering for this path
-                        proc.wait()
-                        err.seek(0)
-                        got.append(_death(proc.returncode, err.read(), cpu, mem))
-                        break
-                    got.append(_answer(line))
-            finally:
-                if proc.poll() is None:
-                    proc.kill()
-                proc.wait()
-    except OSError as exc:
-        got.append(Verdict(False, reason=f"cannot start the isolated validator: {exc}"))
-    return got
+class _Child:
+    """One validator child (``vet_child``) that answers path after path on its stdin/stdout."""
 
+    def __init__(self):
+        env = {k: v for k, v in os.environ.items() if k not in _DROP_ENV}
+        env.update(HDF5_PLUGIN_PRELOAD="::", OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", MKL_NUM_THREADS="1",
+                   PYTHONDONTWRITEBYTECODE="1")
+        self.cpu, self.mem = int(os.environ.get(CPU_ENV, CPU_SECONDS)), address_space_limit()
+        self.limits = os.environ.get(LIMITS_ENV, "")
+        self.wall = self.cpu * 2 + 30
+        cmd = [sys.executable, "-c", "import sys; from resweep.core.format.vet_child import main; sys.exit(main())",
+               str(self.cpu), str(self.mem)]
+        self.err = tempfile.TemporaryFile()
+        self.alive = True
+        self.proc = subprocess.Popen(cmd, env=env, stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=self.err)
+        self.lines: queue.Queue = queue.Queue()
+        threading.Thread(target=self._read, daemon=True, name="resweep-vet").start()
 
-def _lines(proc, paths) -> "queue.Queue":
-    """Feed ``paths`` to the child and hand its output lines over a queue (None at the end), so the
-    parent can wait for each with a timeout."""
-    q: queue.Queue = queue.Queue()
+    def fits(self) -> bool:
+        """Still running, and started with the limits in force now."""
+        return (self.proc.poll() is None and self.cpu == int(os.environ.get(CPU_ENV, CPU_SECONDS))
+                and self.mem == address_space_limit() and self.limits == os.environ.get(LIMITS_ENV, ""))
 
-    def feed():
+    def _read(self):
+        for line in self.proc.stdout:
+            self.lines.put(line)
+        self.lines.put(None)
+
+    def ask(self, path: str) -> Verdict:
+        """The verdict on ``path``; when the child dies or hangs on it (then ``alive`` is False),
+        the refusal saying so."""
         try:
-            proc.stdin.write("".join(json.dumps(p) + "\n" for p in paths).encode())
-            proc.stdin.close()
-        except OSError:  # the child died early: its exit status says why
+            self.proc.stdin.write((json.dumps(path) + "\n").encode())
+            self.proc.stdin.flush()
+        except OSError:  # it died before reading: its exit status says why
             pass
+        try:
+            line = self.lines.get(timeout=self.wall)
+        except queue.Empty:
+            self.close(kill=True)
+            return Verdict(False, reason=f"corrupt or hostile file: the isolated validator hit its wall-time "
+                                         f"limit of {self.wall} s; refused")
+        if line is None:  # the child ended before answering
+            self.proc.wait()
+            self.err.seek(0)
+            tail = self.err.read()
+            self.close()
+            return _death(self.proc.returncode, tail, self.cpu, self.mem)
+        return _answer(line)
 
-    def read():
-        for line in proc.stdout:
-            q.put(line)
-        q.put(None)
+    def close(self, kill: bool = False):
+        """End the child: its stdin closed (it exits after the path it is on), or killed."""
+        self.alive = False
+        if kill:
+            self.proc.kill()
+        try:
+            self.proc.stdin.close()
+        except OSError:
+            pass
+        try:
+            self.proc.wait(timeout=5)
+        except subprocess.TimeoutExpired:
+            self.proc.kill()
+            self.proc.wait()
+        self.err.close()
 
-    for fn in (feed, read):
-        threading.Thread(target=fn, daemon=True, name="resweep-vet").start()
-    return q
+
+def _start() -> _Child:
+    return _Child()
+
+
+_kept: _Child | None = None
+_kept_lock = threading.Lock()
 
 
 def _answer(line: bytes) -> Verdict:

@@ -1,12 +1,12 @@
 """The child side of the isolated first open (see ``vet.py``): limits itself, then validates.
 
-Run as ``python -c "...vet_child import main..." CPU_SECONDS ADDRESS_SPACE_BYTES`` with the paths
-to validate on standard input, one JSON string a line. For each path, in order, it prints one
-JSON line and flushes it: ``{"ok": true}`` or ``{"ok": false, "dataset": ..., "reason": ...}``
-(``"memory": true`` when the address-space limit stopped it). Each path gets ``CPU_SECONDS`` of
-CPU time of its own (the soft limit is moved on before each one), so the parent knows from the
-lines printed which path a child that died was on. Worlds stored identically are decoded once
-(a soak folder's traces share one). Imports only numpy, h5py and resweep.core.format.
+Run as ``python -c "...vet_child import main..." CPU_SECONDS ADDRESS_SPACE_BYTES``. It reads paths
+on standard input, one JSON string a line, and answers each with one JSON line, flushed, before
+reading the next: ``{"ok": true}`` or ``{"ok": false, "dataset": ..., "reason": ...}``
+(``"memory": true`` when the address-space limit stopped it); it ends when its input closes. Each
+path gets ``CPU_SECONDS`` of CPU time of its own (the soft limit is moved on before each one),
+so the parent knows which path a child that died was on. Worlds stored identically are decoded
+once (a soak folder's traces share one). Imports only numpy, h5py and resweep.core.format.
 """
 from __future__ import annotations
 
@@ -15,19 +15,19 @@ import resource
 import sys
 
 
-def _limit_self(cpu: int, mem: int, count: int) -> None:
-    hard = cpu * max(1, count) + 5
-    resource.setrlimit(resource.RLIMIT_CPU, (cpu, hard))  # SIGXCPU at the soft limit, SIGKILL at the hard
+def _limit_self(mem: int) -> None:
     resource.setrlimit(resource.RLIMIT_AS, (mem, mem))
     resource.setrlimit(resource.RLIMIT_CORE, (0, 0))
 
 
 def _cpu_for_next(cpu: int) -> None:
-    """Give the next path ``cpu`` seconds from now (never past the hard limit set at start)."""
+    """Give the next path ``cpu`` seconds of CPU time from now: SIGXCPU ends the child past it
+    (the parent's wall-time limit backs this up)."""
     used = resource.getrusage(resource.RUSAGE_SELF)
     now = int(used.ru_utime + used.ru_stime) + 1
     _, hard = resource.getrlimit(resource.RLIMIT_CPU)
-    resource.setrlimit(resource.RLIMIT_CPU, (min(now + cpu, hard), hard))
+    soft = now + cpu if hard == resource.RLIM_INFINITY else min(now + cpu, hard)
+    resource.setrlimit(resource.RLIMIT_CPU, (soft, hard))
 
 
 def _no_plugins() -> None:
@@ -54,15 +54,16 @@ def validate(path: str, worlds=None) -> dict:
 def main(argv=None) -> int:
     argv = sys.argv[1:] if argv is None else argv
     cpu, mem = int(argv[0]), int(argv[1])
-    paths = [json.loads(line) for line in sys.stdin if line.strip()]
-    _limit_self(cpu, mem, len(paths))
+    _limit_self(mem)
     _no_plugins()
     from resweep.core.world.world_cache import WorldCache
     worlds = WorldCache(max_bytes=mem // 4)
-    for path in paths:
+    for line in iter(sys.stdin.readline, ""):
+        if not line.strip():
+            continue
         _cpu_for_next(cpu)
         try:
-            doc = validate(str(path), worlds)
+            doc = validate(str(json.loads(line)), worlds)
         except MemoryError:
             doc = {"ok": False, "memory": True}
             worlds = WorldCache(max_bytes=mem // 4)
