@@ -124,6 +124,7 @@ def hostile(tmp_path):
 def test_hostile_files_in_a_farm_folder_are_refused_and_the_batch_goes_on(cluster, hostile, tmp_path):
     folder, good = hostile
     client = distributed.Client(cluster.scheduler_address)
+    client.wait_for_workers(2, timeout=60)  # a worker killed by an earlier test is back
     env = {"RESWEEP_VET_CPU": "2", "RESWEEP_VET_CACHE": str(tmp_path / "vetted.json")}
     before = client.run(lambda: {k: os.environ.get(k) for k in env})
     client.run(lambda: os.environ.update(env))
