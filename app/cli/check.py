@@ -11,7 +11,7 @@ from resweep.core.check.stream import check_trace
 from resweep.core.errors import TraceFormatError
 from resweep.core.check.rows import warm_up
 from resweep.core.format.reader import open_trace
-from resweep.core.format.vet import vet
+from resweep.core.format.vet import vet_many
 
 from resweep.app.cli.solver_args import settings_from
 from resweep.app.cli.exits import EXIT_DIVERGED, EXIT_OK, EXIT_USAGE
@@ -142,13 +142,8 @@ def open_all(paths) -> list[str]:
 
 def vet_all(paths) -> list[str]:
     """One line per trace the isolated validator refuses (``core/format/vet.py``), in order."""
-    bad = []
-    for path in paths:
-        try:
-            vet(path)
-        except TraceFormatError as exc:
-            bad.append(exc.one_line())
-    return bad
+    got = vet_many(paths)  # one child validates them all, one after the other
+    return [err.one_line() for err in (got[str(p)] for p in dict.fromkeys(map(str, paths))) if err is not None]
 
 
 def vet_all_while(paths, work=None) -> list[str]:
@@ -195,8 +190,9 @@ def run(args) -> int:
         return run_follow(args, settings, fail_on, print_summary, compile_notice)
     warm = None
     if _kernels_on_disk():
-        def warm():
-            compile_notice(settings.precision, quiet=args.quiet)
+        def warm():  # quietly: loading can pass the notice's 1 s on a busy machine, and a bad
+            # file's refusal must stay the only line
+            compile_notice(settings.precision, quiet=True)
     bad = vet_all_while(args.traces, warm)  # isolated first open of every trace, then a normal open
     bad = bad or open_all(args.traces)
     if bad:

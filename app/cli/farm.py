@@ -158,7 +158,8 @@ def _print(res, doc, settings, fail_on, args, out=sys.stdout):
 
 
 class _Progress:
-    """tqdm bar of traces done, with entity-frames done beside it (nothing when disabled)."""
+    """tqdm bar of traces done, with entity-frames done beside it (nothing when disabled); it moves
+    as workers report, not only when their tasks end (see ``run_farm``)."""
 
     def __init__(self, total: int, enabled: bool):
         self.bar = None
@@ -169,8 +170,9 @@ class _Progress:
 
     def update(self, done: int, total: int, rows: int):
         if self.bar is not None:
-            self.bar.update(done - self.bar.n)
-            self.bar.set_postfix_str(f"{rows:,} entity-frames", refresh=False)
+            if done > self.bar.n:
+                self.bar.update(done - self.bar.n)
+            self.bar.set_postfix_str(f"{rows:,} entity-frames", refresh=done <= self.bar.n)
 
     def __enter__(self):
         return self

@@ -16,10 +16,71 @@ import logging
 import os
 import signal
 import threading
+import time
+import uuid
 from concurrent.futures import CancelledError, ThreadPoolExecutor
 
 from resweep.core.analysis.farm_task import check_batch
 from resweep.core.errors import ClusterError
+
+
+#: Seconds between two progress events of one task (a farm of 100 nodes sends its scheduler about
+#: one message per worker and second).
+PROGRESS_SECONDS = 1.0
+
+
+class _Tallies:
+    """Running tallies of unfinished tasks, ``task -> (traces, entity-frames)``, for live progress
+    (shared between the thread that hears them and the one that reads them)."""
+
+    def __init__(self):
+        self._lock = threading.Lock()
+        self._live: dict = {}
+        self._gone: set = set()
+
+    def hear(self, task, traces: int, rows: int) -> None:
+        with self._lock:
+            if task not in self._gone:
+                self._live[task] = (int(traces), int(rows))
+
+    def forget(self, task) -> None:
+        """The task's result is in: its results count from now on, its tally no more."""
+        with self._lock:
+            self._gone.add(task)
+            self._live.pop(task, None)
+
+    def total(self) -> tuple[int, int]:
+        with self._lock:
+            return sum(t for t, _ in self._live.values()), sum(r for _, r in self._live.values())
+
+
+class _LocalReport:
+    """``report`` of a task in this process: straight into the tallies."""
+
+    def __init__(self, tallies: _Tallies, task):
+        self.tallies, self.task = tallies, task
+
+    def __call__(self, traces, rows):
+        self.tallies.hear(self.task, traces, rows)
+
+
+class _EventReport:
+    """``report`` of a task on a Dask worker: a worker event on ``topic``, at most once per
+    :data:`PROGRESS_SECONDS` (picklable; each task gets its own copy)."""
+
+    def __init__(self, topic: str, task):
+        self.topic, self.task, self._last = topic, task, 0.0
+
+    def __call__(self, traces, rows):
+        now = time.monotonic()
+        if now - self._last < PROGRESS_SECONDS:
+            return
+        self._last = now
+        from distributed import get_worker
+        try:
+            get_worker().log_event(self.topic, (self.task, int(traces), int(rows)))
+        except ValueError:  # not running on a worker (never in a farm): no live progress
+            pass
 
 
 def _reason(exc: BaseException) -> str:
@@ -37,9 +98,10 @@ class ThreadEngine:
     def __init__(self):
         self._pool = ThreadPoolExecutor(1, thread_name_prefix="resweep-farm")
         self._stop = threading.Event()
+        self.tallies = _Tallies()
 
-    def submit(self, jobs, options):
-        return self._pool.submit(check_batch, jobs, options, self._stop.is_set)
+    def submit(self, jobs, options, task=None):
+        return self._pool.submit(check_batch, jobs, options, self._stop.is_set, _LocalReport(self.tallies, task))
 
     def outcome(self, fut):
         try:
@@ -80,14 +142,23 @@ class DaskEngine:
                                                  processes=True, dashboard_address=":0",
                                                  silence_logs=logging.CRITICAL)  # reasons reach the summary
                 self.client = Client(self._cluster)
+                from resweep.core.analysis.farm_quick_exit import QuickExit
+                self.client.register_plugin(QuickExit(), name="resweep-quick-exit")
         except (OSError, TimeoutError, ValueError, RuntimeError) as exc:
             self.close()
             raise ClusterError(address or "local", f"cannot start or reach the cluster: {_reason(exc)}") from None
         self.name = address or f"local cluster, {workers} worker processes"
         self.workers = max(1, len(self.client.scheduler_info().get("workers", {})))
+        self.tallies = _Tallies()
+        self._topic = f"resweep-progress-{uuid.uuid4().hex}"
+        self.client.subscribe_topic(self._topic, self._heard)
 
-    def submit(self, jobs, options):
-        return self.client.submit(check_batch, jobs, options, pure=False)
+    def _heard(self, event):
+        _, (task, traces, rows) = event
+        self.tallies.hear(task, traces, rows)
+
+    def submit(self, jobs, options, task=None):
+        return self.client.submit(check_batch, jobs, options, None, _EventReport(self._topic, task), pure=False)
 
     def outcome(self, fut):
         if fut.status == "cancelled":

@@ -20,7 +20,10 @@ def run_farm(traces, options, engine, progress=None, missing=()) -> FarmResults:
     Args:
         missing: farm_inputs.Missing entries, recorded as unreadable.
         progress: called as ``progress(traces_done, traces_total, entity_frames_done)`` after every
-            finished task.
+            finished task and, while tasks run, about four times a second with what the workers
+            reported so far (``engine.tallies``: traces finished inside running tasks and
+            entity-frames checked in them, the latter estimated as frames read times entities
+            until the task's report gives the exact count).
     """
     res = FarmResults(list(traces), keys={t.path: t.key for t in traces})
     for m in missing:
@@ -47,10 +50,14 @@ class _Run:
         self.parts = {}   # path -> {f0: TraceReport}
         self.rows_done = 0
         self.finished = 0  # traces with a report or a reason
+        self.tasks = 0
+        self.ids = {}     # future -> task number (the key of its live tally)
 
     def submit(self, jobs):
-        fut = self.engine.submit(jobs, self.options)
+        self.tasks += 1
+        fut = self.engine.submit(jobs, self.options, self.tasks)
         self.live[fut] = jobs
+        self.ids[fut] = self.tasks
         fut.add_done_callback(self.done.put)
 
     def drain(self):
@@ -58,10 +65,12 @@ class _Run:
             try:
                 fut = self.done.get(timeout=0.25)
             except queue.Empty:
+                self.tell()
                 continue
             if fut not in self.live:
                 continue
             jobs = self.live.pop(fut)
+            self.engine.tallies.forget(self.ids.pop(fut))
             parts, reason = self.engine.outcome(fut)
             if reason is not None and len(jobs) > 1:  # a batch failed: retry its traces one by one,
                 for job in jobs:                        # so one bad trace cannot sink its batch-mates
@@ -70,8 +79,14 @@ class _Run:
                 self.take(jobs[0][0], None, reason)
             for part in parts or ():
                 self.take(part.path, part, None)
-            if self.progress is not None:
-                self.progress(self.finished, len(self.res.traces), self.rows_done)
+            self.tell()
+
+    def tell(self):
+        """Progress so far: finished tasks' results plus the running tasks' tallies."""
+        if self.progress is not None:
+            traces, rows = self.engine.tallies.total()
+            self.progress(min(self.finished + traces, len(self.res.traces)), len(self.res.traces),
+                          self.rows_done + rows)
 
     def take(self, path, part, reason):
         res = self.res

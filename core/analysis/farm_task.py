@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import os
 import sys
+import threading
 import time
 from dataclasses import dataclass, field
 
@@ -61,6 +62,7 @@ class PartResult:
 
 
 _warmed: set = set()
+_local = threading.local()
 
 
 def configure(options: FarmOptions) -> None:
@@ -74,37 +76,76 @@ def configure(options: FarmOptions) -> None:
 
 
 def check_part(path: str, options: FarmOptions, frames: tuple[int, int] | None = None,
-               should_stop=None) -> PartResult:
+               should_stop=None, progress=None) -> PartResult:
     """Check trace ``path`` whole (``frames`` None) or frames ``[f0, f1)``.
 
     With ``frames`` None a trace bigger than about 1.5 ``options.range_rows`` entity-frames is not
     checked here: the result carries the ``plan`` of ranges for the engine to hand out.
+    ``progress(rows)`` is called per frame block with the entity-frames read so far (frames
+    times entities, an estimate of the rows the report will count).
     """
     t0 = time.perf_counter()
     configure(options)
     from resweep.core.errors import TraceFormatError
     from resweep.core.format.reader import open_trace
     try:
-        with open_trace(path) as trace:
+        with open_trace(path, worlds=_worlds()) as trace:
             if frames is None:
                 plan = _plan(trace, options)
                 if len(plan) > 1:
                     return PartResult(path, plan=plan, seconds=time.perf_counter() - t0)
                 frames = (0, trace.frame_count)
-            report = _check(trace, options, frames, should_stop)
+            report = _check(trace, options, frames, should_stop, progress)
     except TraceFormatError as exc:
         return PartResult(path, frames, error=exc.one_line(), seconds=time.perf_counter() - t0)
     return PartResult(path, tuple(frames), report=report, seconds=time.perf_counter() - t0)
 
 
-def check_batch(jobs, options: FarmOptions, should_stop=None) -> list[PartResult]:
+def _worlds():
+    """This thread's world cache (a worker with several task threads keeps one per thread: a
+    cached world is moved through its edits by one check at a time)."""
+    from resweep.core.world.world_cache import WorldCache
+    cache = getattr(_local, "worlds", None)
+    if cache is None:
+        cache = _local.worlds = WorldCache()
+    return cache
+
+
+def check_batch(jobs, options: FarmOptions, should_stop=None, report=None) -> list[PartResult]:
     """:func:`check_part` for each ``(path, frames)`` of ``jobs`` in turn (one task for many small
-    traces); stops early, leaving the rest out of the result, when ``should_stop()`` is True."""
+    traces); stops early, leaving the rest out of the result, when ``should_stop()`` is True.
+
+    Whole traces are first validated by the isolated validator (``format.vet.vet_many``: a
+    limited child process that this worker keeps for batch after batch, so a hostile file cannot
+    hang or crash the worker and no batch pays for starting a child);
+    a refused trace comes back with its one-line reason. Ranges of a split trace are not vetted
+    again: the task that planned them vetted the file.
+
+    ``report(traces, entity_frames)``, when given, hears what this task has done so far (traces
+    finished, entity-frames checked or being checked) as it goes; it may drop calls (throttling).
+    """
+    from resweep.core.format.vet import vet_many
+    configure(options)
+    refused = vet_many([path for path, frames in jobs if frames is None], keep=True)
     out = []
+    done = [0, 0]  # traces finished, entity-frames of finished parts
+
+    def running(rows):
+        report(done[0], done[1] + rows)
+
     for path, frames in jobs:
         if should_stop is not None and should_stop():
             break
-        out.append(check_part(path, options, frames, should_stop))
+        why = refused.get(str(path)) if frames is None else None
+        if why is not None:
+            part = PartResult(path, None, error=why.one_line())
+        else:
+            part = check_part(path, options, frames, should_stop, running if report is not None else None)
+        out.append(part)
+        done[0] += part.error is not None or part.report is not None and frames is None
+        done[1] += part.report.entity_frames if part.report is not None else 0
+        if report is not None:
+            report(done[0], done[1])
     return out
 
 
@@ -113,15 +154,17 @@ def _plan(trace, options: FarmOptions):
     return plan_ranges(trace.frame_count, trace.entity_count, trace.block_frames(), options.range_rows)
 
 
-def _check(trace, options: FarmOptions, frames, should_stop):
+def _check(trace, options: FarmOptions, frames, should_stop, progress=None):
     from resweep.core.check.rows import warm_up
     from resweep.core.check.stream import check_trace
     key = (options.settings.precision, str(trace.frame_dtype))
     if key not in _warmed:
         _warm(*key, warm_up)
         _warmed.add(key)
+    f0, n = frames[0], trace.entity_count
+    blocks = None if progress is None else (lambda done, total: progress((done - f0) * n))
     return check_trace(trace, options.settings, limit=options.limit, should_stop=should_stop,
-                       frames=tuple(frames))
+                       frames=tuple(frames), progress=blocks)
 
 
 def _warm(precision: str, frame_dtype: str, warm_up) -> None:

@@ -52,6 +52,7 @@ class SafeFile:
         if not is_h5:
             raise TraceFormatError(path, None, "not an HDF5 file (no HDF5 signature)")
         self.swmr = bool(swmr)
+        self._groups: dict = {}  # path -> group reached through hard links, for later lookups under it
         try:
             self.file = h5py.File(self.path, "r", locking=False, swmr=self.swmr)
         except H5_FAILURES as exc:
@@ -84,7 +85,11 @@ class SafeFile:
         node = self.file
         parts = [p for p in name.split("/") if p]
         walked = ""
-        for i, part in enumerate(parts):
+        first = 0
+        head = self._groups.get("/" + "/".join(parts[:-1])) if len(parts) > 1 else None
+        if head is not None:  # the parent group was walked already: every link on its path is checked
+            node, first, walked = head, len(parts) - 1, "/" + "/".join(parts[:-1])
+        for i, part in enumerate(parts[first:], first):
             walked += "/" + part
             try:
                 link = node.get(part, getlink=True)
@@ -106,6 +111,8 @@ class SafeFile:
                 node = node[part]
             except H5_FAILURES as exc:
                 raise self.fail(walked, f"cannot open object (truncated or corrupt?): {exc}") from None
+        if isinstance(node, h5py.Group):
+            self._groups[walked] = node  # reached through hard links only (soft ones returned above)
         return node
 
     def group(self, name: str, required: bool = True):
@@ -165,6 +172,32 @@ class SafeFile:
             return ds[sel]
         except H5_FAILURES as exc:
             raise self.fail(ds.name, f"cannot read data (truncated or corrupt?): {exc}") from None
+
+    def stored_digest(self, ds) -> bytes | None:
+        """Digest of ``ds`` as the file stores it: shape, dtype, layout, filter pipeline and the
+        raw (still compressed) bytes of every chunk, read without decoding them. Two datasets
+        with the same digest decode to the same array, so a decoded copy can be reused (a farm's
+        world cache). None for an unchunked dataset (nothing to save: it is stored uncompressed).
+        """
+        import hashlib
+        h = hashlib.blake2b(digest_size=20)
+        try:
+            plist = ds.id.get_create_plist()
+            pipeline = [plist.get_filter(k)[:3] for k in range(plist.get_nfilters())]
+            h.update(repr((ds.shape, ds.dtype.str, ds.chunks, pipeline, ds.fillvalue)).encode())
+            if ds.chunks is None:
+                return None
+            spots = []
+            ds.id.chunk_iter(lambda info: spots.append(info.chunk_offset))
+            for spot in spots:
+                mask, data = ds.id.read_direct_chunk(spot)
+                h.update(repr((spot, mask, len(data))).encode())
+                h.update(data)
+        except TraceFormatError:
+            raise
+        except H5_FAILURES as exc:
+            raise self.fail(ds.name, f"cannot read stored chunks (truncated or corrupt?): {exc}") from None
+        return h.digest()
 
     def read_strings(self, ds) -> tuple[str, ...]:
         """The strings of ``ds``, each escaped and cut by :func:`printable` (they reach reports)."""

@@ -6,6 +6,7 @@ does not grow with trace length. Files are opened read-only and never modified.
 """
 from __future__ import annotations
 
+import hashlib
 from dataclasses import dataclass
 
 import numpy as np
@@ -16,6 +17,7 @@ from resweep.core.format.h5safe import H5_FAILURES, SafeFile
 from resweep.core.format.limits import Limits, current
 from resweep.core.world.shapes import IMPLICIT_TYPES, BlockShapes, unit_cube_shapes
 from resweep.core.world.voxel_world import VoxelWorld
+from resweep.core.world.world_cache import WorldCache
 
 FORMAT_NAME = "resweep-trace"
 FORMAT_VERSION = 1
@@ -63,8 +65,10 @@ class Trace:
             or still recording); it is read up to the last flush.
     """
 
-    def __init__(self, path, swmr: bool = False, limits: Limits | None = None):
+    def __init__(self, path, swmr: bool = False, limits: Limits | None = None, worlds: WorldCache | None = None):
         self.limits = current() if limits is None else limits
+        self._worlds = worlds
+        self._blocks_key = None
         self._f = SafeFile(path, swmr=swmr)
         self.path = self._f.path
         try:
@@ -211,14 +215,33 @@ class Trace:
             raise f.fail(od.name, "holds duplicate chunk origins")
         ed = f.dataset("/world/edits", required=False)
         edits = self._read_edits(ed, origin, S) if ed is not None else np.zeros((0, 5), np.int64)
-        blocks = f.read(bd)
-        if C and self.type_count < IMPLICIT_TYPES and int(blocks.max()) >= self.type_count:
-            raise f.fail(bd.name, f"holds block type {int(blocks.max())}, but /blocks defines only "
+        blocks, top = self._read_blocks(bd)
+        if C and self.type_count < IMPLICIT_TYPES and top >= self.type_count:
+            raise f.fail(bd.name, f"holds block type {top}, but /blocks defines only "
                                   f"{self.type_count} types")
         self.chunk_size = S
         self.chunk_origin = origin
         self.chunk_blocks = blocks
         self.edits = edits
+
+    def _read_blocks(self, bd):
+        """``(chunk_blocks, largest block type)``; with a world cache, a copy already decoded from
+        identically stored bytes is shared instead of decompressing the dataset again (it is
+        then read-only: worlds copy the blocks they edit)."""
+        if self._worlds is None:
+            blocks = self._f.read(bd)
+            return blocks, int(blocks.max()) if blocks.size else 0
+        key = self._f.stored_digest(bd)
+        got = self._worlds.get(("blocks", key)) if key is not None else None
+        if got is None:
+            blocks = self._f.read(bd)
+            blocks.flags.writeable = False
+            got = blocks, int(blocks.max()) if blocks.size else 0
+            if key is None:
+                key = hashlib.blake2b(blocks.tobytes(), digest_size=20).digest()
+            self._worlds.put(("blocks", key), got, blocks.nbytes)
+        self._blocks_key = key
+        return got
 
     def _read_edits(self, ed, origin, S):
         """The edits, after the edit-count limit and the world-size limit counting the chunks
@@ -324,9 +347,28 @@ class Trace:
 
     # -- access ------------------------------------------------------------------------------
     def world(self) -> VoxelWorld:
-        """A fresh world at the recorded chunks (no edits applied yet)."""
-        return VoxelWorld(self.chunk_size, self.chunk_origin, self.chunk_blocks, self.shapes,
-                          self.voxel_size, self.edits)
+        """A world at the recorded chunks (no edits applied yet): a fresh one, or with a world
+        cache (``open_trace(worlds=...)``) the cached world of every trace whose world is stored
+        identically, rewound."""
+        def build():
+            return VoxelWorld(self.chunk_size, self.chunk_origin, self.chunk_blocks, self.shapes,
+                              self.voxel_size, self.edits)
+        if self._worlds is None:
+            return build()
+        return self._worlds.world(self.world_digest(), build)
+
+    def world_digest(self) -> bytes:
+        """Digest of everything that makes this trace's world: chunk size, origins, blocks, edits,
+        block shapes and voxel size (blocks by their stored bytes when a world cache is in use)."""
+        h = hashlib.blake2b(digest_size=20)
+        blocks_key = self._blocks_key or hashlib.blake2b(np.ascontiguousarray(self.chunk_blocks).tobytes()).digest()
+        shapes = b"implicit" if self.type_count == IMPLICIT_TYPES else b"".join(
+            [self.shapes.box_start.tobytes(), self.shapes.boxes.tobytes(), repr(self.shapes.names).encode()])
+        for part in (repr((self.chunk_size, self.voxel_size)).encode(), blocks_key, self.chunk_origin.tobytes(),
+                     self.edits.tobytes(), shapes):
+            h.update(len(part).to_bytes(8, "little"))
+            h.update(part)
+        return h.digest()
 
     def frames(self, f0: int, f1: int) -> FrameBlock:
         """Frames ``[f0, f1)`` (clamped to the trace)."""
@@ -443,14 +485,16 @@ class Trace:
         self.close()
 
 
-def open_trace(path, swmr: bool = False, limits: Limits | None = None) -> Trace:
+def open_trace(path, swmr: bool = False, limits: Limits | None = None, worlds: WorldCache | None = None) -> Trace:
     """Open and validate a trace; raises :class:`TraceFormatError` with a one-line reason.
 
     ``swmr``: open in HDF5 SWMR read mode so :meth:`Trace.refresh` sees frames a recorder is
     still appending. ``limits`` default to :func:`resweep.core.format.limits.current`
-    (``RESWEEP_MAX`` applied).
+    (``RESWEEP_MAX`` applied). ``worlds``: a world cache shared by the traces one thread opens
+    in turn (farm workers), so traces stored with the same world decode and build it once; the
+    trace's ``chunk_blocks`` may then be a read-only array shared with other traces.
     """
-    return Trace(path, swmr=swmr, limits=limits)
+    return Trace(path, swmr=swmr, limits=limits, worlds=worlds)
 
 
 def _refresh(obj):

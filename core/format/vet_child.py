@@ -1,20 +1,34 @@
 """The child side of the isolated first open (see ``vet.py``): limits itself, then validates.
 
-Run as ``python -c "...vet_child import main..." PATH CPU_SECONDS ADDRESS_SPACE_BYTES``. Prints one
-JSON line: ``{"ok": true}`` or ``{"ok": false, "dataset": ..., "reason": ...}`` (``"memory": true``
-when the address-space limit stopped it), with ``"peak_rss"``: the child's own peak resident bytes. Imports only numpy, h5py and resweep.core.format.
+Run as ``python -c "...vet_child import main..." CPU_SECONDS ADDRESS_SPACE_BYTES``. It reads paths
+on standard input, one JSON string a line, and answers each with one JSON line, flushed, before
+reading the next: ``{"ok": true}`` or ``{"ok": false, "dataset": ..., "reason": ...}``
+(``"memory": true`` when the address-space limit stopped it), each with ``"peak_rss"``, the
+child's own peak resident bytes so far; it ends when its input closes. Each
+path gets ``CPU_SECONDS`` of CPU time of its own (the soft limit is moved on before each one),
+so the parent knows which path a child that died was on. Worlds stored identically are decoded
+once (a soak folder's traces share one). Imports only numpy, h5py and resweep.core.format.
 """
 from __future__ import annotations
 
 import json
+import resource
 import sys
 
 
-def _limit_self(cpu: int, mem: int) -> None:
-    import resource
-    resource.setrlimit(resource.RLIMIT_CPU, (cpu, cpu + 5))  # SIGXCPU at cpu, SIGKILL at the hard limit
+def _limit_self(mem: int) -> None:
     resource.setrlimit(resource.RLIMIT_AS, (mem, mem))
     resource.setrlimit(resource.RLIMIT_CORE, (0, 0))
+
+
+def _cpu_for_next(cpu: int) -> None:
+    """Give the next path ``cpu`` seconds of CPU time from now: SIGXCPU ends the child past it
+    (the parent's wall-time limit backs this up)."""
+    used = resource.getrusage(resource.RUSAGE_SELF)
+    now = int(used.ru_utime + used.ru_stime) + 1
+    _, hard = resource.getrlimit(resource.RLIMIT_CPU)
+    soft = now + cpu if hard == resource.RLIM_INFINITY else min(now + cpu, hard)
+    resource.setrlimit(resource.RLIMIT_CPU, (soft, hard))
 
 
 def _no_plugins() -> None:
@@ -26,11 +40,11 @@ def _no_plugins() -> None:
         h5pl.remove(0)
 
 
-def validate(path: str) -> dict:
+def validate(path: str, worlds=None) -> dict:
     from resweep.core.errors import TraceFormatError
     from resweep.core.format.reader import open_trace
     try:
-        with open_trace(path) as trace:
+        with open_trace(path, worlds=worlds) as trace:
             for _ in trace.iter_frames():
                 pass
     except TraceFormatError as exc:
@@ -55,14 +69,21 @@ def peak_rss() -> int | None:
 
 def main(argv=None) -> int:
     argv = sys.argv[1:] if argv is None else argv
-    path, cpu, mem = argv[0], int(argv[1]), int(argv[2])
-    _limit_self(cpu, mem)
-    try:
-        _no_plugins()
-        doc = validate(path)
-    except MemoryError:
-        doc = {"ok": False, "memory": True}
-    doc["peak_rss"] = peak_rss()
-    sys.stdout.write(json.dumps(doc) + "\n")
-    sys.stdout.flush()
+    cpu, mem = int(argv[0]), int(argv[1])
+    _limit_self(mem)
+    _no_plugins()
+    from resweep.core.world.world_cache import WorldCache
+    worlds = WorldCache(max_bytes=mem // 4)
+    for line in iter(sys.stdin.readline, ""):
+        if not line.strip():
+            continue
+        _cpu_for_next(cpu)
+        try:
+            doc = validate(str(json.loads(line)), worlds)
+        except MemoryError:
+            doc = {"ok": False, "memory": True}
+            worlds = WorldCache(max_bytes=mem // 4)
+        doc["peak_rss"] = peak_rss()
+        sys.stdout.write(json.dumps(doc) + "\n")
+        sys.stdout.flush()
     return 0

@@ -6,6 +6,7 @@ full cell, and a shape may reach one voxel past its cell on any side (coordinate
 """
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -51,7 +52,22 @@ class BlockShapes:
 
 
 def unit_cube_shapes(count: int = IMPLICIT_TYPES, names=None) -> BlockShapes:
-    """Shapes used when a trace has no ``/blocks``: type 0 air, every other type the unit cube."""
+    """Shapes used when a trace has no ``/blocks``: type 0 air, every other type the unit cube.
+
+    The default table (65,536 types, 3 MB) is made once per process and shared: callers never
+    write into a BlockShapes.
+    """
+    if count == IMPLICIT_TYPES and names is None:
+        return _implicit_shapes()
+    return _unit_cubes(count, names)
+
+
+@functools.lru_cache(maxsize=1)
+def _implicit_shapes() -> BlockShapes:
+    return _unit_cubes(IMPLICIT_TYPES, None)
+
+
+def _unit_cubes(count: int, names) -> BlockShapes:
     box_start = np.concatenate([[0], np.arange(count, dtype=np.int64)]).astype(np.int64)
     boxes = np.tile(np.array([[0.0, 0.0, 0.0, 1.0, 1.0, 1.0]]), (count - 1, 1))
     if names is None:

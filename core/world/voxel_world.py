@@ -89,6 +89,19 @@ class VoxelWorld:
         """Sorted distinct frames at which edits apply, int64."""
         return np.unique(self.edits[:, 0]) if len(self.edits) else np.zeros(0, np.int64)
 
+    @property
+    def nbytes(self) -> int:
+        """Bytes of block data this world holds (its blocks and the recorded copy of edited chunks)."""
+        return int(self.blocks.nbytes + self._pristine.nbytes)
+
+    def rewind(self) -> None:
+        """Back to the recorded chunks with no edit applied, as a freshly built world."""
+        if self._applied:
+            self.blocks[self._touched] = self._pristine
+            self._applied = 0
+            self.version += 1
+        self.frame = -(2**62)
+
     def advance_to(self, frame: int) -> bool:
         """Apply every edit with ``edit frame <= frame`` (world as it stands when ``frame`` is solved).
 

@@ -105,3 +105,58 @@ def test_a_killed_worker_loses_no_trace(cluster, soak):
     assert sorted(res.reports) == sorted(good) and len(res.unreadable) == 3
     for p in good:
         assert res.reports[p].as_json() == _alone(p)
+
+
+@pytest.fixture()
+def hostile(tmp_path):
+    """A soak folder with two good runs and two hostile files: one that makes HDF5 loop forever
+    while reading it, one whose damaged symbol table makes link lookups fail."""
+    import hostile_traces as H
+    folder = tmp_path / "hostile"
+    folder.mkdir()
+    good = [soak_run(folder / f"bot_{i}.h5", seed=40 + i, frames=30) for i in range(2)]
+    small = H.one_row(tmp_path / "one_row.h5")  # the builders patch this layout
+    H.heap_size_zero(small, folder / "hang.h5")
+    H.broken_symbol_node(small, folder / "snod.h5")
+    return folder, good
+
+
+def test_hostile_files_in_a_farm_folder_are_refused_and_the_batch_goes_on(cluster, hostile, tmp_path):
+    folder, good = hostile
+    client = distributed.Client(cluster.scheduler_address)
+    client.wait_for_workers(2, timeout=60)  # a worker killed by an earlier test is back
+    env = {"RESWEEP_VET_CPU": "2", "RESWEEP_VET_CACHE": str(tmp_path / "vetted.json")}
+    before = client.run(lambda: {k: os.environ.get(k) for k in env})
+    client.run(lambda: os.environ.update(env))
+    try:
+        pids = set(client.run(os.getpid).values())
+        res, _ = _farm(cluster, folder)
+        assert set(client.run(os.getpid).values()) == pids  # no worker hung, crashed or was replaced
+    finally:
+        for addr, old in before.items():
+            client.run(lambda old=old: [os.environ.pop(k, None) if v is None else os.environ.__setitem__(k, v)
+                                        for k, v in old.items()], workers=[addr])
+        client.close()
+    assert sorted(res.reports) == sorted(good)
+    for p in good:
+        assert res.reports[p].as_json() == _alone(p)
+    reasons = {os.path.basename(p): why for p, why in res.unreadable.items()}
+    assert sorted(reasons) == ["hang.h5", "snod.h5"]
+    assert "isolated validator" in reasons["hang.h5"] and "limit" in reasons["hang.h5"]
+    for p, why in res.unreadable.items():
+        assert why.startswith(p) and "\n" not in why
+
+
+def test_workers_report_progress_while_their_tasks_run(cluster, soak):
+    """Running tasks send their tallies as worker events (throttled to one a second per task):
+    the scheduler logged some for this farm's topic."""
+    folder, _ = soak
+    traces, _ = find_traces([str(folder)])
+    engine = DaskEngine(address=cluster.scheduler_address)
+    try:
+        run_farm(traces, FarmOptions(SolverSettings(), limit=LIMIT, range_rows=200, threads=1), engine)
+        events = engine.client.get_events(engine._topic)
+    finally:
+        engine.close()
+    assert events and all(len(msg) == 3 for _, msg in events)
+    assert max(msg[1] for _, msg in events) >= 1  # a task told of a trace it had finished

@@ -125,7 +125,7 @@ def test_hang_inside_hdf5_is_stopped_by_the_isolated_validator(good, tmp_path, m
     line = ei.value.one_line()
     assert str(path) in line and "limit" in line and "\n" not in line
     # The verdict is cached by path, size and modification time: no second child.
-    monkeypatch.setattr(vetmod, "_run_child", lambda p: pytest.fail("validated twice"))
+    monkeypatch.setattr(vetmod, "_start", lambda: pytest.fail("validated twice"))
     with pytest.raises(TraceFormatError):
         vetmod.vet(path)
 
@@ -135,8 +135,8 @@ def test_isolated_validator_accepts_a_good_trace_once(good, tmp_path, monkeypatc
     monkeypatch.setenv("HDF5_PLUGIN_PATH", str(tmp_path))  # removed from the child's environment
     vetmod.vet(good)
     calls = []
-    real = vetmod._run_child
-    monkeypatch.setattr(vetmod, "_run_child", lambda p: calls.append(p) or real(p))
+    real = vetmod._Child.ask
+    monkeypatch.setattr(vetmod._Child, "ask", lambda self, p: calls.append(p) or real(self, p))
     vetmod.vet(good)
     assert calls == []
     import os
@@ -159,3 +159,31 @@ def test_max_option_raises_a_limit_and_rejects_unknown_names(tmp_path, monkeypat
     with pytest.raises(SystemExit) as ei:
         main(["info", "--max", "bogus=3", str(path)])
     assert ei.value.code == 2 and "unknown limit 'bogus=3'" in capsys.readouterr().err
+
+
+def test_one_child_validates_a_batch_and_a_hang_in_it_costs_only_that_file(good, tmp_path, monkeypatch):
+    """vet_many (farm workers): one child for the batch; the file that hangs HDF5 is refused with
+    the limit it hit, the files after it go on in a second child, which is kept for the next batch."""
+    monkeypatch.setenv("RESWEEP_VET_CACHE", str(tmp_path / "vetted.json"))
+    monkeypatch.setenv(vetmod.CPU_ENV, "2")
+    import shutil
+    other = shutil.copy(good, tmp_path / "other.h5")
+    hang = H.heap_size_zero(good, tmp_path / "heap.h5")
+    notes = tmp_path / "notes.h5"
+    notes.write_text("not a trace\n")
+    started = []
+    real = vetmod._start
+    monkeypatch.setattr(vetmod, "_start", lambda: started.append(1) or real())
+    got = vetmod.vet_many([good, hang, other, notes], keep=True)
+    assert len(started) == 2
+    assert got[str(good)] is None and got[str(other)] is None
+    for path, word in ((hang, "limit"), (notes, "HDF5")):
+        line = got[str(path)].one_line()
+        assert line.startswith(str(path)) and word in line and "\n" not in line
+    third = shutil.copy(good, tmp_path / "third.h5")
+    again = vetmod.vet_many([third, hang], keep=True)
+    assert again[str(third)] is None and again[str(hang)].one_line() == got[str(hang)].one_line()
+    assert len(started) == 2  # the kept child answered; the hang's verdict came from the cache
+    kept = vetmod._kept
+    vetmod._kept = None
+    kept.close()
