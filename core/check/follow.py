@@ -1,10 +1,12 @@
 """Checking a trace while a recorder is still writing it: new frames are checked as they are committed.
 
 Each round re-reads the commit record (:meth:`Trace.refresh`, HDF5 SWMR read), checks only the
-frames committed since the last round with :func:`check_trace` on a window of the trace, and
-adds the counts. It ends when the writer marks the file closed, or when ``should_stop`` says so.
-A frame at the start of a round is not compared with the last frame of the previous round for
-``discontinuity`` (each round starts without a previous frame).
+frames committed since the last round as a frame range of :func:`check_trace`, and adds the
+counts. A range starts from the world with every earlier edit applied and measures the gap of its
+first frame from the recorded end of the frame before it, so the first frame of a round is checked
+for ``discontinuity`` against the last frame of the previous round, and the summed counts and
+divergence list equal those of one check of the finished trace. It ends when the writer marks the
+file closed, or when ``should_stop`` says so.
 """
 from __future__ import annotations
 
@@ -13,19 +15,6 @@ import time
 from resweep.core.check.stream import TraceReport, check_trace
 from resweep.core.format.reader import Trace
 from resweep.core.solve.settings import SolverSettings
-
-
-class _Window:
-    """``trace`` seen as frames ``[f0, f1)`` by :func:`check_trace` (frame numbers stay absolute)."""
-
-    def __init__(self, trace: Trace, f0: int, f1: int):
-        self._trace, self.f0, self.frame_count = trace, f0, f1
-
-    def __getattr__(self, name):
-        return getattr(self._trace, name)
-
-    def iter_frames(self, rows: int = 1 << 17, f0: int = 0, f1: int | None = None, prefetch: bool = False):
-        return self._trace.iter_frames(rows, max(f0, self.f0), self.frame_count if f1 is None else f1, prefetch)
 
 
 def follow_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit: int = 1000,
@@ -41,7 +30,7 @@ def follow_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limi
         closed = not trace.ended_early
         F = trace.frame_count
         if F > done:
-            part = check_trace(_Window(trace, done, F), settings, limit=max(0, limit - len(total.divergences)))
+            part = check_trace(trace, settings, limit=max(0, limit - len(total.divergences)), frames=(done, F))
             for k, n in part.counts.items():
                 total.counts[k] += n
             total.divergences += part.divergences
