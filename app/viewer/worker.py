@@ -208,7 +208,8 @@ class TraceWorker(QObject):
 
     def _run_solve(self, job: _Job, path: str, settings: SolverSettings):
         try:
-            # A trace handle of its own: the GUI thread keeps reading frames from the session's.
+            # A Trace of its own (the GUI thread reads frames from the session's); both share the
+            # process's one handle of the file (core/format/h5safe.py), so a recording can be refreshed.
             with open_trace(path) as trace:
                 report = check_trace(
                     trace, settings, limit=0,
