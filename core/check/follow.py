@@ -22,13 +22,15 @@ def follow_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limi
     """Check ``trace`` (opened with ``swmr=True``) until its writer closes it.
 
     ``on_round(report)`` is called after each round that checked new frames; ``should_stop()``
-    returning True ends the loop (``report.cancelled`` set). Returns the summed report.
+    returning True ends the loop (``report.cancelled`` set, ``report.ended_early`` says how far
+    the recording had been committed). Returns the summed report.
     """
     total = TraceReport(trace.path, 0, trace.entity_count, 0)
     done = 0
     while True:
         closed = not trace.ended_early
         F = trace.frame_count
+        total.ended_early = trace.ended_early_info()
         if F > done:
             part = check_trace(trace, settings, limit=max(0, limit - len(total.divergences)), frames=(done, F))
             for k, n in part.counts.items():

@@ -393,6 +393,14 @@ class Trace:
         """Time of the last frame read (for a trace that ended early: the last flushed time)."""
         return float(self.time[-1]) if len(self.time) else None
 
+    def ended_early_info(self) -> dict | None:
+        """For a recorder file its writer has not closed (killed, crashed or still recording):
+        ``{"frames_read": int, "last_flushed_time": float seconds or None}``, else None. The one
+        definition behind ``ended_early`` in every report (info, check, the viewer)."""
+        if not self.ended_early:
+            return None
+        return {"frames_read": int(self.frame_count), "last_flushed_time": self.last_time}
+
     def refresh(self) -> int:
         """Pick up frames a recorder committed since the trace was opened (or last refreshed).
 

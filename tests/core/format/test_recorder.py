@@ -55,12 +55,24 @@ def test_recorder_killed_from_outside(tmp_path, kill_at):
     assert F <= last + 1 + FLUSH  # nothing beyond what the child had recorded
 
 
-def test_killed_trace_info_says_ended_early(tmp_path, capsys):
+def test_killed_trace_info_and_check_say_it_ended_early(tmp_path, capsys):
+    """Killed after frame 40 with commits every 16 frames: frames 0..31 are read, frame 31 is the
+    last flushed one (time 31/60 s); info and check say so in their text and their JSON alike."""
+    import json
     from resweep.app.cli.main import main
     path, _ = rh.record_and_kill(tmp_path, "after_frame", 40)
+    line = f"trace ended early (the recorder did not close it): 32 frames read, last flushed at {31 / rh.FPS:.3f} s"
+    record = {"frames_read": 32, "last_flushed_time": 31 / rh.FPS}
     assert main(["info", str(path)]) == 0
-    out = capsys.readouterr().out
-    assert f"ended early: 32 frames read, last flushed at {31 / rh.FPS:.3f} s" in out
+    assert line in capsys.readouterr().out
+    assert main(["info", str(path), "--json", "-"]) == 0
+    assert json.loads(capsys.readouterr().out)["ended_early"] == record
+    main(["check", str(path), "--json", str(tmp_path / "r.json")])
+    assert line in capsys.readouterr().err
+    entry = json.loads((tmp_path / "r.json").read_text())["traces"][0]
+    assert entry["ended_early"] == record and entry["frames"] == 32
+    main(["check", rh.TESTS.parent.joinpath("sample_traces", "quarry.h5").as_posix(), "--json", "-", "--quiet"])
+    assert json.loads(capsys.readouterr().out)["traces"][0]["ended_early"] is None
 
 
 def test_spawn_despawn_resolves_like_write_trace(tmp_path):
