@@ -172,3 +172,77 @@ def start_slow_recorder(path, frames: int):
         assert proc.poll() is None and time.monotonic() < deadline, "recorder did not start"
         time.sleep(0.02)
     return proc
+
+
+# -- a recording whose rounds the test chooses --------------------------------------------------
+GLIDE_IDS = (7, 8, 9)
+GLIDE_JUMP = {7: (48, np.array([0.0, 0.0, 1.25])), 8: (20, np.array([0.75, 0.0, 0.0]))}  # id: (frame, offset)
+GLIDE_LATE = {9: 48}  # id: first frame
+
+
+def glide_args(f: int) -> dict:
+    """``Recorder.frame`` arguments of frame ``f`` of a free glide above the floor world: every
+    recorded end equals the start plus the motion and the next frame starts there, except that
+    entity 7 teleports by (0, 0, 1.25) at frame 48 and entity 8 by (0.75, 0, 0) at frame 20
+    (discontinuities of 1.25 and 0.75); entity 9 appears at frame 48. No solid is near."""
+    ids = [i for i in GLIDE_IDS if f >= GLIDE_LATE.get(i, 0)]
+    base = {7: (2.0, 1.5, 1.0), 8: (3.5, 1.5, 1.0), 9: (5.0, 1.5, 2.0)}
+    v = np.array([0.0, 0.0, 1.0 / 32])  # exact in binary: positions and ends are exact
+    start = []
+    for i in ids:
+        p = np.array(base[i]) + (f - GLIDE_LATE.get(i, 0)) * v
+        at, offset = GLIDE_JUMP.get(i, (None, None))
+        if at is not None and f >= at:
+            p = p + offset
+        start.append(p)
+    start = np.array(start)
+    motion = np.tile(v, (len(ids), 1))
+    return dict(time=f / FPS, ids=ids, start=start, motion=motion, end=start + motion,
+                half_extents=np.full((len(ids), 3), 0.25))
+
+
+STEPPED = r"""
+import sys
+import recording_helpers as rh
+from resweep.core.format.recorder import Recorder
+path, total = sys.argv[1], int(sys.argv[2])
+S, origin, blocks = rh.world()
+rec = Recorder(path, chunk_size=S, chunk_origin=origin, chunk_blocks=blocks, flush_every=1 << 30)
+f = 0
+print("open", flush=True)
+for line in sys.stdin:
+    n = min(int(line), total)
+    while f < n:
+        rec.frame(**rh.glide_args(f))
+        f += 1
+    if n == total:
+        rec.close()
+    else:
+        rec.flush()
+    print(n, flush=True)
+    if n == total:
+        break
+"""
+
+
+class SteppedRecorder:
+    """A child process recording :func:`glide_args` frames; :meth:`commit_to` records up to a
+    frame and commits there, so the caller decides where every flush (and follow round) ends.
+    Committing ``total`` closes the trace."""
+
+    def __init__(self, path, total: int):
+        env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(TESTS), os.environ.get("PYTHONPATH", "")]))
+        self.proc = subprocess.Popen([sys.executable, "-c", STEPPED, str(path), str(total)], env=env,
+                                     stdin=subprocess.PIPE, stdout=subprocess.PIPE, text=True)
+        assert self.proc.stdout.readline().strip() == "open"
+
+    def commit_to(self, frame: int):
+        self.proc.stdin.write(f"{frame}\n")
+        self.proc.stdin.flush()
+        assert int(self.proc.stdout.readline()) == frame
+
+    def wait(self) -> int:
+        self.proc.stdin.close()
+        code = self.proc.wait(timeout=60)
+        self.proc.stdout.close()
+        return code

@@ -187,7 +187,7 @@ def run(args) -> int:
         return EXIT_USAGE
     if getattr(args, "follow", False):
         from resweep.app.cli.check_follow import run_follow
-        return run_follow(args, settings, fail_on, print_summary, compile_notice)
+        return run_follow(args, settings, fail_on)
     warm = None
     if _kernels_on_disk():
         def warm():  # quietly: loading can pass the notice's 1 s on a busy machine, and a bad
@@ -225,12 +225,15 @@ def run(args) -> int:
             print_summary(report, settings, fail_on, out=out, json_path=args.json, limit=args.limit)
         if report.failing(fail_on) and status == EXIT_OK:
             status = EXIT_DIVERGED
-    if args.json:
-        doc = {"version": 1, "settings": {**settings.as_dict(), "fail_on": list(fail_on), "limit": args.limit},
-               "traces": [r.as_json() for r in reports]}
-        if not emit_json(doc, args.json, "check", out):
-            return EXIT_USAGE
+    if args.json and not emit_json(json_doc(reports, settings, fail_on, args.limit), args.json, "check", out):
+        return EXIT_USAGE
     return status
+
+
+def json_doc(reports, settings, fail_on, limit: int) -> dict:
+    """The ``--json`` report of single traces (README "Commands")."""
+    return {"version": 1, "settings": {**settings.as_dict(), "fail_on": list(fail_on), "limit": limit},
+            "traces": [r.as_json() for r in reports]}
 
 
 def _short(path: str) -> str:

@@ -4,15 +4,18 @@ from __future__ import annotations
 import signal
 import sys
 
+from resweep.core.analysis.describe import ended_early_text
 from resweep.core.check.follow import follow_trace
 from resweep.core.format.reader import open_trace
 
+from resweep.app.cli.check import compile_notice, json_doc, print_summary
 from resweep.app.cli.exits import EXIT_DIVERGED, EXIT_INTERRUPTED, EXIT_OK, EXIT_USAGE
+from resweep.app.cli.output import Stdout, emit_json
 
 
-def run_follow(args, settings, fail_on, print_summary, compile_notice) -> int:
+def run_follow(args, settings, fail_on) -> int:
     """Follow one trace until its writer closes it; Ctrl-C ends after the round in progress and
-    prints the counts so far (exit status 130)."""
+    prints (and writes to ``--json``) the counts so far, with exit status 130."""
     if len(args.traces) != 1:
         sys.stderr.write("resweep check: error: --follow takes exactly one TRACE\n")
         return EXIT_USAGE
@@ -35,10 +38,16 @@ def run_follow(args, settings, fail_on, print_summary, compile_notice) -> int:
                                   on_round=on_round)
         finally:
             signal.signal(signal.SIGINT, previous)
-    if report.cancelled and not args.quiet:
-        sys.stderr.write("resweep check: interrupted; counts so far:\n")
+    out = Stdout()
     if not args.quiet:
-        print_summary(report, settings, fail_on)
+        if report.cancelled:
+            sys.stderr.write("resweep check: interrupted; counts so far:\n")
+        if report.ended_early is not None:
+            sys.stderr.write(f"resweep check: {path}: {ended_early_text(report.ended_early)}\n")
+        if args.json != "-":
+            print_summary(report, settings, fail_on, out=out, json_path=args.json, limit=args.limit)
+    if args.json and not emit_json(json_doc([report], settings, fail_on, args.limit), args.json, "check", out):
+        return EXIT_USAGE
     if report.cancelled:
         return EXIT_INTERRUPTED
     return EXIT_DIVERGED if report.failing(fail_on) else EXIT_OK

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import sys
 
-from resweep.core.analysis.describe import describe
+from resweep.core.analysis.describe import describe, ended_early_text
 from resweep.core.format.reader import open_trace
 from resweep.core.format.vet import vet
 
@@ -39,10 +39,7 @@ def run(args) -> int:
                                      for t in info["block_types"] if t["voxels"] or t["type"] < 8) + "\n")
     w(f"  active rows   {info['active_entity_frames']}, invalid {info['invalid_entity_frames']}\n")
     if info["ended_early"]:
-        e = info["ended_early"]
-        t = e["last_flushed_time"]
-        w(f"  recording     ended early: {e['frames_read']} frames read, "
-          + ("no frame flushed" if t is None else f"last flushed at {t:.3f} s") + " (the recorder did not close it)\n")
+        w(f"  recording     {ended_early_text(info['ended_early'])}\n")
     if info["problems"]:
         w("  problems:\n")
         for p in info["problems"]:

@@ -205,6 +205,8 @@ class TraceWorker(QObject):
 
     def _run_solve(self, job: _Job, path: str, settings: SolverSettings):
         try:
+            # resolve_trace opens a Trace of its own (the GUI thread reads frames from the session's);
+            # both share the process's one handle of the file (core/format/h5safe.py).
             report = resolve_trace(path, settings, lambda rows: self._t_block.emit(job.number, rows),
                                    lambda done, total: self._t_progress.emit(job.number, done, total),
                                    should_stop=job.stop.is_set)

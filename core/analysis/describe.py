@@ -60,21 +60,17 @@ def describe(trace: Trace, max_problems: int = 20) -> dict:
         "edits": int(len(trace.edits)), "block_types": types, "block_type_count": int(trace.shapes.count)
         if trace.type_count < 65536 else None,
         "active_entity_frames": active_rows, "invalid_entity_frames": invalid_rows, "problems": problems,
-        "ended_early": ended_early(trace),
+        "ended_early": trace.ended_early_info(),
     }
 
 
-def ended_early(trace: Trace) -> dict | None:
-    """For a recorder file its writer never closed: frames read and the last flushed time, else None."""
-    if not getattr(trace, "ended_early", False):
-        return None
-    return {"frames_read": trace.frame_count, "last_flushed_time": trace.last_time}
+def ended_early_text(e: dict) -> str:
+    """The words for an ``ended_early`` record (:meth:`Trace.ended_early_info`)."""
+    t = "no frame flushed" if e["last_flushed_time"] is None else f"last flushed at {e['last_flushed_time']:.3f} s"
+    return f"trace ended early (the recorder did not close it): {e['frames_read']} frames read, {t}"
 
 
 def ended_early_line(trace: Trace) -> str | None:
     """One line saying a trace ended early (frames read, last flushed time), or None."""
-    e = ended_early(trace)
-    if e is None:
-        return None
-    t = "no frame flushed" if e["last_flushed_time"] is None else f"last flushed at {e['last_flushed_time']:.3f} s"
-    return (f"trace ended early (the recorder did not close it): {e['frames_read']} frames read, {t}")
+    e = trace.ended_early_info()
+    return None if e is None else ended_early_text(e)

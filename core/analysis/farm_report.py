@@ -23,7 +23,7 @@ def merge_ranges(parts, limit: int):
     """
     from resweep.core.check.stream import TraceReport
     first = parts[0]
-    out = TraceReport(first.path, first.frames, first.entities, 0)
+    out = TraceReport(first.path, first.frames, first.entities, 0, ended_early=first.ended_early)
     for p in parts:
         out.entity_frames += p.entity_frames
         for k in KINDS:

@@ -51,7 +51,11 @@ class Divergence:
 
 @dataclass
 class TraceReport:
-    """Result of checking one trace: exact counts per kind, the first ``limit`` divergences."""
+    """Result of checking one trace: exact counts per kind, the first ``limit`` divergences.
+
+    ``ended_early``: :meth:`Trace.ended_early_info` of the trace as checked (frames read and the
+    last flushed time of a recording its writer has not closed), else None.
+    """
 
     path: str
     frames: int
@@ -60,13 +64,14 @@ class TraceReport:
     counts: dict = field(default_factory=lambda: {k: 0 for k in KINDS})
     divergences: list = field(default_factory=list)
     cancelled: bool = False
+    ended_early: dict | None = None
 
     def failing(self, kinds) -> int:
         return sum(self.counts[k] for k in kinds)
 
     def as_json(self) -> dict:
         return {"path": self.path, "frames": self.frames, "entities": self.entities,
-                "entity_frames": self.entity_frames, "counts": dict(self.counts),
+                "entity_frames": self.entity_frames, "ended_early": self.ended_early, "counts": dict(self.counts),
                 "divergences": [d.as_json() for d in self.divergences]}
 
 
@@ -121,7 +126,7 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
     counts of consecutive ranges add up to the whole trace's and their divergence lists, joined in
     range order, are its list.
     """
-    report = TraceReport(trace.path, trace.frame_count, trace.entity_count, 0)
+    report = TraceReport(trace.path, trace.frame_count, trace.entity_count, 0, ended_early=trace.ended_early_info())
     world = trace.world()
     tol = settings.tolerance * trace.voxel_size
     dt = settings.dtype

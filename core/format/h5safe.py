@@ -4,10 +4,16 @@ Trace files arrive attached to bug reports, so every object is checked before it
 no external links, no soft links that dangle or leave the file, no external raw storage, no
 virtual datasets, only the filters that ship with h5py, and no dataset that declares more data
 than a file of its size could plausibly hold.
+
+One owner per file per process: HDF5 fails a SWMR refresh of a dataset that is open twice in one
+process ("can't insert duplicate key"), whether through two file handles or two handles of the
+same file. So every :class:`SafeFile` of the same file (device and inode) shares one h5py file and
+one h5py dataset per dataset (:class:`_Shared`), and refreshes go through that owner.
 """
 from __future__ import annotations
 
 import os
+import threading
 
 import h5py
 import numpy as np
@@ -30,16 +36,41 @@ H5_FAILURES = (OSError, KeyError, ValueError, TypeError, RuntimeError, IndexErro
                OverflowError, SystemError, UnicodeError)
 
 
+class _Shared:
+    """The one open h5py file of a file in this process, with one h5py dataset per dataset.
+
+    Attributes:
+        file: h5py.File; swmr: bool, opened in SWMR read mode; users: int, open SafeFiles.
+        by_path: dict str -> h5py.Dataset, datasets by the name they were asked for;
+        by_addr: dict int -> h5py.Dataset, the same objects by file address (two names that
+            reach one dataset through a soft link share its handle).
+        lock: held while datasets are opened or refreshed, so no second handle of a dataset
+            exists during a refresh.
+    """
+
+    def __init__(self, file: h5py.File, swmr: bool):
+        self.file, self.swmr, self.users = file, swmr, 1
+        self.by_path: dict[str, h5py.Dataset] = {}
+        self.by_addr: dict[int, h5py.Dataset] = {}
+        self.lock = threading.RLock()
+
+
+_SHARED: dict[tuple[int, int], _Shared] = {}
+_SHARED_LOCK = threading.Lock()
+
+
 class SafeFile:
     """A read-only h5py file whose objects are fetched through link and storage checks."""
 
     def __init__(self, path, swmr: bool = False):
-        """``swmr``: open for reading while a recorder may still append (HDF5 SWMR read mode)."""
+        """``swmr``: open for reading while a recorder may still append (HDF5 SWMR read mode).
+        A file this process already has open is shared, in the mode it was opened in."""
         self.path = str(path)
         try:
-            size = os.path.getsize(self.path)
+            st = os.stat(self.path)
         except OSError as exc:
             raise TraceFormatError(path, None, f"cannot open: {exc.strerror or exc}") from None
+        size = st.st_size
         if os.path.isdir(self.path):
             raise TraceFormatError(path, None, "is a directory, not a trace file")
         self.size = size
@@ -51,29 +82,64 @@ class SafeFile:
             raise TraceFormatError(path, None, f"cannot open: {exc}") from None
         if not is_h5:
             raise TraceFormatError(path, None, "not an HDF5 file (no HDF5 signature)")
-        self.swmr = bool(swmr)
+        key = (st.st_dev, st.st_ino)
+        with _SHARED_LOCK:
+            shared = _SHARED.get(key)
+            if shared is not None and shared.file.id.valid:
+                shared.users += 1
+            else:
+                shared = _SHARED[key] = _Shared(*self._open(bool(swmr)))
+        self._key, self._shared = key, shared
+        self.file, self.swmr = shared.file, shared.swmr
         self._groups: dict = {}  # path -> group reached through hard links, for later lookups under it
+
+    def _open(self, swmr: bool) -> tuple[h5py.File, bool]:
+        """(h5py file, opened in SWMR mode) of a file this process does not have open yet."""
         try:
-            self.file = h5py.File(self.path, "r", locking=False, swmr=self.swmr)
+            f = h5py.File(self.path, "r", locking=False, swmr=swmr)
         except H5_FAILURES as exc:
-            if self.swmr:
-                raise TraceFormatError(path, None, f"cannot open as HDF5 (truncated or corrupt?): {exc}") from None
+            if swmr:
+                raise TraceFormatError(self.path, None, f"cannot open as HDF5 (truncated or corrupt?): {exc}") from None
             # A recorder holds the file in SWMR mode or was killed holding it ("already open for
-            # write"), or this process has it open in SWMR read mode ("different flags"): read as SWMR.
-            self.swmr = True
+            # write"), or this process has it open in SWMR mode outside SafeFile ("different
+            # flags"): read as SWMR.
             try:
-                self.file = h5py.File(self.path, "r", locking=False, swmr=True)
+                return h5py.File(self.path, "r", locking=False, swmr=True), True
             except H5_FAILURES:  # the first error says what is wrong
-                raise TraceFormatError(path, None, f"cannot open as HDF5 (truncated or corrupt?): {exc}") from None
-        # HDF5 shares one open file per process: a file this process already reads in SWMR mode
-        # opens in that mode again, with the older metadata that SWMR refreshes must update.
-        self.swmr = self.swmr or bool(getattr(self.file, "swmr_mode", False))
+                raise TraceFormatError(self.path, None, f"cannot open as HDF5 (truncated or corrupt?): {exc}") from None
+        # HDF5 itself shares one open file per process: a file this process writes in SWMR mode
+        # (a recorder here) opens in that mode again.
+        return f, swmr or bool(getattr(f, "swmr_mode", False))
 
     def close(self):
+        """Leave the shared file; the last SafeFile of it closes it (a second close does nothing)."""
+        shared, self._shared = self._shared, None
+        if shared is None:
+            return
+        with _SHARED_LOCK:
+            shared.users -= 1
+            if shared.users > 0:
+                return
+            if _SHARED.get(self._key) is shared:
+                del _SHARED[self._key]
         try:
-            self.file.close()
+            shared.file.close()
         except Exception:  # closing a broken file must never mask the first error
             pass
+
+    def refresh(self, ds=None):
+        """Re-read the on-disk state of ``ds`` (an h5py dataset from :meth:`dataset`), or of every
+        dataset opened so far (SWMR readers: a recorder appended). Shapes grow for every
+        SafeFile of the file; readers keep to the rows they validated."""
+        if not self.swmr:
+            return
+        shared = self._shared
+        with shared.lock:
+            for d in ([ds] if ds is not None else list(shared.by_addr.values())):
+                try:
+                    d.refresh()
+                except H5_FAILURES as exc:
+                    raise self.fail(d.name, f"cannot refresh (truncated or corrupt?): {exc}") from None
 
     def fail(self, name, reason):
         return TraceFormatError(self.path, name, reason)
@@ -128,9 +194,10 @@ class SafeFile:
     def dataset(self, name: str, required: bool = True, whole: bool = True):
         """The dataset at ``name`` after storage checks; None if absent and not required.
 
-        ``whole`` marks datasets read in one go, which get the absolute size cap too.
+        ``whole`` marks datasets read in one go, which get the absolute size cap too. Every call
+        for the same dataset returns the same h5py object (the file's owner keeps it).
         """
-        node = self._resolve(name)
+        node = self._shared_dataset(name)
         if node is None:
             if required:
                 raise self.fail(name, "required dataset is missing")
@@ -165,6 +232,25 @@ class SafeFile:
             raise self.fail(name, f"declares {declared:,} bytes, over the {MAX_WHOLE_READ:,}-byte limit for "
                                   "data read whole")
         return node
+
+    def _shared_dataset(self, name: str):
+        """The owner's h5py object for ``name`` (opened and kept on first use), or what
+        :meth:`_resolve` finds when that is not a dataset (None or a group)."""
+        shared = self._shared
+        with shared.lock:
+            node = shared.by_path.get(name)
+            if node is not None:
+                return node
+            node = self._resolve(name)
+            if not isinstance(node, h5py.Dataset):
+                return node
+            try:
+                addr = h5py.h5o.get_info(node.id).addr
+            except H5_FAILURES as exc:
+                raise self.fail(name, f"cannot read object header (truncated or corrupt?): {exc}") from None
+            node = shared.by_addr.setdefault(addr, node)
+            shared.by_path[name] = node
+            return node
 
     def read(self, ds, sel=()):
         """``ds[sel]`` with read failures turned into one-line errors."""

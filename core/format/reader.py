@@ -125,6 +125,7 @@ class Trace:
         if cd is None:
             return
         _check(f, cd, spec("/frames/committed"), {})
+        f.refresh(cd)  # SWMR: the shared handle may hold an older record (no-op otherwise)
         c = f.read(cd).astype(np.int64)
         if (c[:3] < 0).any() or c[3] not in (0, 1):
             raise f.fail(cd.name, f"holds {c.tolist()}; expected [frames, entities, edits] >= 0 and closed 0 or 1")
@@ -140,7 +141,7 @@ class Trace:
         if self.committed is None:
             return ds
         if self._f.swmr and any(ds.shape[a] < n for a, n in axis_sizes.items()):
-            ds.refresh()  # HDF5 shares one file per process: another handle may hold older metadata
+            self._f.refresh(ds)  # a dataset opened before the commit record was read
         for axis, n in axis_sizes.items():
             if ds.shape[axis] < n:
                 raise self._f.fail(ds.name, f"has {ds.shape[axis]} rows on axis {axis} but {why} commits {n}")
@@ -434,6 +435,14 @@ class Trace:
         """Time of the last frame read (for a trace that ended early: the last flushed time)."""
         return float(self.time[-1]) if len(self.time) else None
 
+    def ended_early_info(self) -> dict | None:
+        """For a recorder file its writer has not closed (killed, crashed or still recording):
+        ``{"frames_read": int, "last_flushed_time": float seconds or None}``, else None. The one
+        definition behind ``ended_early`` in every report (info, check, the viewer)."""
+        if not self.ended_early:
+            return None
+        return {"frames_read": int(self.frame_count), "last_flushed_time": self.last_time}
+
     def refresh(self) -> int:
         """Pick up frames a recorder committed since the trace was opened (or last refreshed).
 
@@ -443,9 +452,7 @@ class Trace:
         if self.committed is None or not self._f.swmr:
             return 0
         before = self.frame_count
-        for obj in (self._f.file["/frames/committed"], self._f.file["/frames"], self._f.file["/entities"]):
-            _refresh(obj)
-        _refresh(self._f.file["/world"])
+        self._f.refresh()
         self._load_commit()
         ed = self._f.dataset("/world/edits", required=False)
         self.edits = (self._read_edits(ed, self.chunk_origin, self.chunk_size) if ed is not None
@@ -459,8 +466,8 @@ class Trace:
         a recorder file opened in SWMR mode. Changes nothing in this Trace (see :meth:`refresh`)."""
         if self.committed is None or not self._f.swmr:
             return None
-        ds = self._f.file["/frames/committed"]
-        ds.refresh()
+        ds = self._f.dataset("/frames/committed")
+        self._f.refresh(ds)
         c = self._f.read(ds)
         return int(c[0]), bool(c[3])
 
@@ -497,15 +504,6 @@ def open_trace(path, swmr: bool = False, limits: Limits | None = None, worlds: W
     return Trace(path, swmr=swmr, limits=limits, worlds=worlds)
 
 
-def _refresh(obj):
-    """Re-read the on-disk state of every dataset in ``obj`` (a group or dataset; SWMR readers)."""
-    import h5py
-    if isinstance(obj, h5py.Dataset):
-        obj.refresh()
-        return
-    for v in obj.values():
-        if isinstance(v, h5py.Dataset):
-            v.refresh()
 def count_extra_chunks(origin: np.ndarray, edits: np.ndarray, S: int) -> int:
     """How many chunks edits touch outside the recorded ones (``origin`` int64 (C, 3) voxels)."""
     if not len(edits):

@@ -14,6 +14,11 @@ Why a recorder killed at any moment leaves a readable trace:
 
 HDF5 SWMR needs the latest file format (``libver="latest"``); readers open such files with
 ``swmr=True`` (the reader does this by itself when a writer died holding the file).
+
+Why memory stays flat over hours: HDF5's two caches are bounded by what appending needs (see
+:data:`RAW_CACHE_BYTES` and :data:`METADATA_CACHE_BYTES`); left at their defaults they fill
+slowly with chunks and index nodes that are never touched again (measured by
+``tests/benchmarks/bench_recorder.py``).
 """
 from __future__ import annotations
 
@@ -31,6 +36,16 @@ from resweep.core.world.shapes import IMPLICIT_TYPES, BlockShapes
 #: Frames and entities per storage chunk of the frame datasets (64 x 64 x 3 float64 = 96 KiB).
 CHUNK_FRAMES = 64
 CHUNK_ENTITIES = 64
+#: HDF5 chunk cache per dataset: none. A flush writes whole frame rows of every storage chunk it
+#: touches, and the file flush before each commit writes every cached chunk anyway, so a cache
+#: would only hold memory: HDF5 2.0's default (8 MiB per dataset) fills chunk by chunk as the
+#: recording grows, up to about 100 MiB for the dozen datasets of a trace.
+RAW_CACHE_BYTES = 0
+#: HDF5 metadata cache, fixed size (bytes as stored; in memory an entry takes several times more).
+#: Appending touches only the newest path of each chunk index (a v2 B-tree once two axes are
+#: resizable) and the object headers; the default cache grows adaptively up to 32 MiB of index
+#: nodes that appending never reads again.
+METADATA_CACHE_BYTES = 64 << 10
 #: Entity names are stored as fixed-length UTF-8 (variable-length data and SWMR do not mix).
 NAME_BYTES = 64
 
@@ -67,8 +82,9 @@ class Recorder:
         self._e_written = 0   # edit rows on disk
         self._last_time = -np.inf
         self._closed = False
-        self._f = h5py.File(self._tmp, "w", libver="latest")
+        self._f = h5py.File(self._tmp, "w", libver="latest", rdcc_nbytes=RAW_CACHE_BYTES)
         try:
+            _fix_metadata_cache(self._f, METADATA_CACHE_BYTES)
             write_header(self._f, voxel_size=voxel_size, up_axis=up_axis, title=title, producer=producer)
             w = write_world(self._f, chunk_size, chunk_origin, chunk_blocks, shapes)
             self._create_datasets(w)
@@ -258,6 +274,17 @@ class Recorder:
         else:
             self.close()
         return False
+
+
+def _fix_metadata_cache(f: h5py.File, nbytes: int):
+    """Give ``f`` a metadata cache of ``nbytes`` that never resizes itself."""
+    cfg = f.id.get_mdc_config()
+    cfg.set_initial_size = True
+    cfg.initial_size = cfg.min_size = cfg.max_size = int(nbytes)
+    # 0 is "off" in HDF5's H5C_cache_incr_mode, H5C_cache_flash_incr_mode and H5C_cache_decr_mode
+    # (H5Cpublic.h); h5py does not name them.
+    cfg.incr_mode = cfg.flash_incr_mode = cfg.decr_mode = 0
+    f.id.set_mdc_config(cfg)
 
 
 def _fit_name(name: str) -> bytes:

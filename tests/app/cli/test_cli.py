@@ -37,7 +37,8 @@ def test_json_to_stdout_has_documented_shape():
     assert doc["version"] == 1
     assert {"tolerance", "skin", "passes", "precision"} <= set(doc["settings"])
     (t,) = doc["traces"]
-    assert set(t) == {"path", "frames", "entities", "entity_frames", "counts", "divergences"}
+    assert set(t) == {"path", "frames", "entities", "entity_frames", "ended_early", "counts", "divergences"}
+    assert t["ended_early"] is None  # a finished trace (README: null unless a recorder never closed it)
     assert t["frames"] == 240 and t["entities"] == 5
     assert set(t["counts"]) == {"invalid", "start_overlap", "penetration", "tunneling", "snag", "mismatch",
                                 "discontinuity", "grounded_mismatch", "step_mismatch"}

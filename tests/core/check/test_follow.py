@@ -27,12 +27,38 @@ def test_follow_checks_every_frame_until_the_writer_closes(tmp_path):
         assert not done.ended_early
         whole = check_trace(done)
     assert (report.frames, report.entities, report.entity_frames) == (FRAMES, whole.entities, whole.entity_frames)
-    # Each round starts without the previous frame, so discontinuities at round starts are not seen.
-    for k in KINDS:
-        if k != "discontinuity":
-            assert report.counts[k] == whole.counts[k], k
-    assert report.counts["discontinuity"] <= whole.counts["discontinuity"]
-    assert sum(report.counts.values()) > 0
+    assert report.counts == whole.counts  # starts of rounds are checked against the previous round
+    assert report.counts["discontinuity"] > 0 and sum(report.counts.values()) > report.counts["discontinuity"]
+    assert [d.as_json() for d in report.divergences] == [d.as_json() for d in whole.divergences]
+
+
+def test_discontinuity_at_the_first_frame_of_a_round_is_found(tmp_path):
+    """Rounds end exactly where the test commits (frames 48 and 96); entity 7 teleports at frame 48,
+    the first frame of the second round, entity 8 at frame 20 inside the first, and entity 9 first
+    appears at frame 48. The worked answer (rh.glide_args): exactly two discontinuities, at
+    (frame 48, entity 7, error 1.25) and (frame 20, entity 8, error 0.75), and nothing else (the
+    glide is free: every recorded end is the reference end); a plain check of the finished
+    file agrees."""
+    warm_up()
+    path = tmp_path / "rounds.h5"
+    rec = rh.SteppedRecorder(path, 120)
+    steps = iter([96, 120])
+    rounds = []
+    try:
+        rec.commit_to(48)
+        with open_trace(path, swmr=True) as live:
+            report = follow_trace(live, on_round=lambda r: rounds.append(r.frames),
+                                  sleep=lambda _s: rec.commit_to(next(steps)))
+    finally:
+        assert rec.wait() == 0
+    assert rounds == [48, 96, 120]
+    found = sorted((d.frame, d.entity, d.kind, d.error) for d in report.divergences)
+    assert found == [(20, 8, "discontinuity", 0.75), (48, 7, "discontinuity", 1.25)]
+    assert report.counts == {k: (2 if k == "discontinuity" else 0) for k in KINDS}
+    with open_trace(path) as done:
+        whole = check_trace(done)
+    assert report.counts == whole.counts and report.entity_frames == whole.entity_frames
+    assert [d.as_json() for d in report.divergences] == [d.as_json() for d in whole.divergences]
 
 
 def test_follow_stops_on_request_with_counts_so_far(tmp_path):

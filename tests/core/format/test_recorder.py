@@ -55,12 +55,24 @@ def test_recorder_killed_from_outside(tmp_path, kill_at):
     assert F <= last + 1 + FLUSH  # nothing beyond what the child had recorded
 
 
-def test_killed_trace_info_says_ended_early(tmp_path, capsys):
+def test_killed_trace_info_and_check_say_it_ended_early(tmp_path, capsys):
+    """Killed after frame 40 with commits every 16 frames: frames 0..31 are read, frame 31 is the
+    last flushed one (time 31/60 s); info and check say so in their text and their JSON alike."""
+    import json
     from resweep.app.cli.main import main
     path, _ = rh.record_and_kill(tmp_path, "after_frame", 40)
+    line = f"trace ended early (the recorder did not close it): 32 frames read, last flushed at {31 / rh.FPS:.3f} s"
+    record = {"frames_read": 32, "last_flushed_time": 31 / rh.FPS}
     assert main(["info", str(path)]) == 0
-    out = capsys.readouterr().out
-    assert f"ended early: 32 frames read, last flushed at {31 / rh.FPS:.3f} s" in out
+    assert line in capsys.readouterr().out
+    assert main(["info", str(path), "--json", "-"]) == 0
+    assert json.loads(capsys.readouterr().out)["ended_early"] == record
+    main(["check", str(path), "--json", str(tmp_path / "r.json")])
+    assert line in capsys.readouterr().err
+    entry = json.loads((tmp_path / "r.json").read_text())["traces"][0]
+    assert entry["ended_early"] == record and entry["frames"] == 32
+    main(["check", rh.TESTS.parent.joinpath("sample_traces", "quarry.h5").as_posix(), "--json", "-", "--quiet"])
+    assert json.loads(capsys.readouterr().out)["traces"][0]["ended_early"] is None
 
 
 def test_spawn_despawn_resolves_like_write_trace(tmp_path):
@@ -128,3 +140,24 @@ def test_recorder_refuses_new_entity_without_size(tmp_path):
             rec.frame(-0.5, [1], [[1, 2, 1]], [[0, 0, 0]], [[1, 2, 1]])
         with pytest.raises(RecordingError, match="block type 4 is not in 0..3"):
             rec.edit(1, 1, 1, 4)
+
+
+def test_recorder_caches_stay_bounded_while_the_trace_grows(tmp_path):
+    """The recorder's HDF5 caches do not grow with the recording (memory flat over hours; the
+    growth itself is measured by tests/benchmarks/bench_recorder.py). Values read back from HDF5's
+    own accessors: the file's chunk cache and the metadata cache's size, limit and entries."""
+    from resweep.core.format.recorder import METADATA_CACHE_BYTES
+    S, origin, blocks = rh.world()
+    with Recorder(tmp_path / "r.h5", chunk_size=S, chunk_origin=origin, chunk_blocks=blocks, flush_every=8) as rec:
+        fid = rec._f.id
+        assert fid.get_access_plist().get_cache()[2] == 0  # rdcc_nbytes: no chunk cache
+        assert rec._ds["start"].id.get_access_plist().get_chunk_cache()[1] == 0
+        sizes = []
+        for f in range(2400):  # about 40 storage-chunk rows: hundreds of chunk index records
+            rec.frame(f / 60, np.arange(2 + f // 100), np.ones((2 + f // 100, 3)), np.zeros((2 + f // 100, 3)),
+                      np.ones((2 + f // 100, 3)), half_extents=np.full((2 + f // 100, 3), 0.4))
+            if f % 400 == 399:
+                max_size, _, cur_size, _ = fid.get_mdc_size()
+                sizes.append(cur_size)
+                assert max_size == METADATA_CACHE_BYTES and cur_size <= METADATA_CACHE_BYTES
+        assert sizes[-1] > 0
