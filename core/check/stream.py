@@ -8,7 +8,7 @@ import numpy as np
 from resweep.core.check import nb_gather
 from resweep.core.check import validity
 from resweep.core.check.kinds import BY_NAME, DISCONTINUITY, INVALID, KINDS, SEVERITY, kind_mask, kinds_of
-from resweep.core.check.rows import RowResults, solve_rows
+from resweep.core.check.rows import RowResults, flag_rows, solve_rows
 from resweep.core.solve.settings import SolverSettings
 from resweep.core.format.reader import Trace
 
@@ -154,13 +154,24 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
                                  fr, col, tol, start, motion, end, gap, disc)
             half = blk.half[0][col] if blk.half.strides[0] == 0 else blk.half[fr, col]
             ground = None if blk.grounded is None else blk.grounded[fr, col]
-            rows = solve_rows(world, start, motion, end, half, settings, out=buf.rows_out(M), up=trace.up_axis,
-                              grounded=ground)
-            rows.flags |= disc.astype(np.int32) << DISCONTINUITY
-            rows.error[disc, DISCONTINUITY] = gap[disc]
+            if on_block is None:
+                # counts need only the flags; the full results only where something diverges
+                flags = flag_rows(world, start, motion, end, half, settings, buf.flags_out(M), up=trace.up_axis,
+                                  grounded=ground)
+                sel = np.flatnonzero(flags | disc)
+                rows = solve_rows(world, start[sel], motion[sel], end[sel], half[sel], settings,
+                                  out=buf.rows_out(len(sel)), up=trace.up_axis,
+                                  grounded=None if ground is None else ground[sel])
+                fr_s, col_s, gap_s, disc_s = fr[sel], col[sel], gap[sel], disc[sel]
+            else:
+                rows = solve_rows(world, start, motion, end, half, settings, out=buf.rows_out(M), up=trace.up_axis,
+                                  grounded=ground)
+                flags, fr_s, col_s, gap_s, disc_s = rows.flags, fr, col, gap, disc
+            rows.flags |= disc_s.astype(np.int32) << DISCONTINUITY
+            rows.error[disc_s, DISCONTINUITY] = gap_s[disc_s]
             report.entity_frames += M
-            _count(report, rows.flags)
-            _collect(report, trace, rows, blk, fr, col, limit, dt, settings.step_height > 0)
+            _count(report, flags | (disc.astype(np.int32) << DISCONTINUITY))
+            _collect(report, trace, rows, blk, fr_s, col_s, limit, dt, settings.step_height > 0)
             if on_block is not None:
                 on_block(BlockResult(fr + blk.f0, col, rows))
         prev_end = np.asarray(blk.end[-1], np.float64)
@@ -185,12 +196,18 @@ class _Buffers:
             dt = self.dtype
             self.inputs = (np.empty((m, 3), dt), np.empty((m, 3), dt), np.empty((m, 3), dt), np.empty(m),
                            np.empty(m, bool))
+            self.flags = np.empty(m, np.int32)
             self.rows = RowResults.alloc(m, self.passes, dt) if self.keep_rows else None
 
     def rows_in(self, m: int):
         """start, motion, recorded end float (m, 3); gap float64 (m,); disc bool (m,)."""
         self._grow(m)
         return tuple(a[:m] for a in self.inputs)
+
+    def flags_out(self, m: int) -> np.ndarray:
+        """int32 (m,) flags of every row of a segment."""
+        self._grow(m)
+        return self.flags[:m]
 
     def rows_out(self, m: int):
         self._grow(m)
