@@ -154,24 +154,11 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
                                  fr, col, tol, start, motion, end, gap, disc)
             half = blk.half[0][col] if blk.half.strides[0] == 0 else blk.half[fr, col]
             ground = None if blk.grounded is None else blk.grounded[fr, col]
-            if on_block is None:
-                # counts need only the flags; the full results only where something diverges
-                flags = flag_rows(world, start, motion, end, half, settings, buf.flags_out(M), up=trace.up_axis,
-                                  grounded=ground)
-                sel = np.flatnonzero(flags | disc)
-                rows = solve_rows(world, start[sel], motion[sel], end[sel], half[sel], settings,
-                                  out=buf.rows_out(len(sel)), up=trace.up_axis,
-                                  grounded=None if ground is None else ground[sel])
-                fr_s, col_s, gap_s, disc_s = fr[sel], col[sel], gap[sel], disc[sel]
-            else:
-                rows = solve_rows(world, start, motion, end, half, settings, out=buf.rows_out(M), up=trace.up_axis,
-                                  grounded=ground)
-                flags, fr_s, col_s, gap_s, disc_s = rows.flags, fr, col, gap, disc
-            rows.flags |= disc_s.astype(np.int32) << DISCONTINUITY
-            rows.error[disc_s, DISCONTINUITY] = gap_s[disc_s]
+            flags, rows, kept = _solve_segment(world, settings, buf, (start, motion, end, half), ground, gap, disc,
+                                               trace.up_axis, every_row=on_block is not None)
             report.entity_frames += M
-            _count(report, flags | (disc.astype(np.int32) << DISCONTINUITY))
-            _collect(report, trace, rows, blk, fr_s, col_s, limit, dt, settings.step_height > 0)
+            _count(report, flags)
+            _collect(report, trace, rows, blk, fr[kept], col[kept], limit, dt, settings.step_height > 0)
             if on_block is not None:
                 on_block(BlockResult(fr + blk.f0, col, rows))
         prev_end = np.asarray(blk.end[-1], np.float64)
@@ -180,6 +167,31 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
         if progress is not None:
             progress(blk.f1, trace.frame_count)
     return report
+
+
+def _solve_segment(world, settings, buf, rows_in, ground, gap, disc, up, every_row: bool):
+    """Solve and classify the M rows of one segment: (flags int32 (M,) with the discontinuity bit,
+    RowResults of the kept rows, int64 indices of the kept rows). ``rows_in``: start, motion,
+    recorded end, half float (M, 3); ``gap`` float64 and ``disc`` bool (M,) from the gather.
+
+    With ``every_row`` every row is kept with all its results (a block listener reads them);
+    otherwise the kernel writes only the flags, and the rows that diverge are solved again with
+    every output for their details (counts need only the flags)."""
+    M = len(disc)
+    if every_row:
+        rows = solve_rows(world, *rows_in, settings, out=buf.rows_out(M), up=up, grounded=ground)
+        kept = np.arange(M)
+    else:
+        flags = flag_rows(world, *rows_in, settings, buf.flags_out(M), up=up, grounded=ground)
+        kept = np.flatnonzero(flags | disc)
+        rows = solve_rows(world, *(a[kept] for a in rows_in), settings, out=buf.rows_out(len(kept)), up=up,
+                          grounded=None if ground is None else ground[kept])
+    d = disc[kept]
+    rows.flags |= d.astype(np.int32) << DISCONTINUITY
+    rows.error[d, DISCONTINUITY] = gap[kept][d]
+    if every_row:
+        return rows.flags, rows, kept
+    return flags | (disc.astype(np.int32) << DISCONTINUITY), rows, kept
 
 
 class _Buffers:
