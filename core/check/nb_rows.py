@@ -13,7 +13,7 @@ from numba import prange
 from resweep.core.check.kinds import (GROUNDED_MISMATCH, INVALID, KIND_COUNT, MISMATCH, PENETRATION, SNAG,
                                      START_OVERLAP, STEP_MISMATCH, TUNNELING)
 from resweep.core.jit.nb_float import fl
-from resweep.core.jit.nb_jit import kernel
+from resweep.core.jit.nb_jit import hot, kernel
 from resweep.core.check.nb_model_kinds import model_kinds
 from resweep.core.solve.nb_models import solve_model
 from resweep.core.solve.nb_slide import path_enters_solid
@@ -166,44 +166,67 @@ def classify_end(i, s, m, e, h, hit, run, contact, d0, world, tol, broad, stack,
 
 
 @kernel(inline="always")
-def check_row(i, start, motion, rec_end, half, world, skin, passes, tol, broad, mp, ground, stack,
+def check_row(i, o, start, motion, rec_end, half, world, skin, passes, tol, broad, mp, ground, stack,
               ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, raised_out, climb_out, flags, err):
-    """Solve and classify row ``i`` (arguments as :func:`check_rows`). Inlined into the row loop:
-    a call with this many array arguments costs about as much as a short solve."""
+    """Solve and classify input row ``i`` into output slot ``o`` (arguments as :func:`check_rows`).
+    Inlined into the row loop (:func:`check_span`): a call with this many array arguments costs
+    about as much as a short solve."""
     vs = world.voxel_size
     s = row3(start, i)
     m = row3(motion, i)
     e = row3(rec_end, i)
     h = row3(half, i)
     for k in range(KIND_COUNT):
-        err[i, k] = fl(vs, np.nan)
+        err[o, k] = fl(vs, np.nan)
     if not row_valid(s, m, e, h):
-        invalid_row(i, ref_end, npass, state, pts, flags, vs)
-        clear_passes(i, 0, t_out, n_out, v_out, type_out, cand_out, vs)
-        raised_out[i] = False
-        climb_out[i] = fl(vs, 0)
+        invalid_row(o, ref_end, npass, state, pts, flags, vs)
+        clear_passes(o, 0, t_out, n_out, v_out, type_out, cand_out, vs)
+        raised_out[o] = False
+        climb_out[o] = fl(vs, 0)
         return
     # the model is a runtime code (one compiled kernel for every model), see nb_models
-    run, hit, contact, raised, climb, plain_up = solve_model(s, m, h, world, skin, passes, broad, stack, mp, i,
+    run, hit, contact, raised, climb, plain_up = solve_model(s, m, h, world, skin, passes, broad, stack, mp, o,
                                                              ref_end, t_out, n_out, v_out, type_out, cand_out, pts)
-    raised_out[i] = raised
-    climb_out[i] = climb
-    clear_passes(i, run, t_out, n_out, v_out, type_out, cand_out, vs)
-    npass[i] = run
+    raised_out[o] = raised
+    climb_out[o] = climb
+    clear_passes(o, run, t_out, n_out, v_out, type_out, cand_out, vs)
+    npass[o] = run
     d0 = overlap_depth(s, h, world)
-    f = start_flags(i, d0, hit, tol, state, err)
-    f |= classify_end(i, s, m, e, h, hit, run, contact, d0, world, tol, broad, stack, ref_end, n_out, err)
+    f = start_flags(o, d0, hit, tol, state, err)
+    f |= classify_end(o, s, m, e, h, hit, run, contact, d0, world, tol, broad, stack, ref_end, n_out, err)
     mk, g_err, s_err = model_kinds(s, m, e, h, world, skin, tol, mp, ground[i], raised, plain_up)
     if mk:
         f |= mk
-        err[i, GROUNDED_MISMATCH] = g_err
-        err[i, STEP_MISMATCH] = s_err
-    flags[i] = f
+        err[o, GROUNDED_MISMATCH] = g_err
+        err[o, STEP_MISMATCH] = s_err
+    flags[o] = f
+
+
+@hot
+def check_span(r0, r1, start, motion, rec_end, half, world, skin, passes, tol, broad, mp, ground, stack,
+               ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, raised, climb, flags, err,
+               one, flags_all):
+    """Rows ``r0`` to ``r1 - 1`` of :func:`check_rows` (one task), ``stack`` its scratch. With
+    ``one`` every row is written to slot 0 of the outputs (one row of scratch) and only its flags
+    are kept, in ``flags_all``.
+
+    The row loop lives in a function compiled without reference counting: in the parallel kernel
+    (which counts references, it allocates the scratch) every array taken out of the world tuple
+    and every call with arrays updated their shared counts per row, atomically (measured: more
+    than half the kernel's time on one thread, and the two threads contend for those counts).
+    """
+    for i in range(r0, r1):
+        o = 0 if one else i
+        check_row(i, o, start, motion, rec_end, half, world, skin, passes, tol, broad, mp, ground, stack,
+                  ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, raised, climb, flags, err)
+        if one:
+            flags_all[i] = flags[0]
 
 
 @kernel(parallel=True, nogil=True)
 def check_rows(start, motion, rec_end, half, world, skin, passes, tol, broad, mp, ground,
-               ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, raised, climb, flags, err):
+               ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, raised, climb, flags, err,
+               flags_only):
     """Re-solve rows and classify the recorded end against the reference.
 
     Args:
@@ -211,6 +234,9 @@ def check_rows(start, motion, rec_end, half, world, skin, passes, tol, broad, mp
         skin, tol: float world units; passes: int; broad: nb_solve.SCAN, WALK or AUTO.
         mp: nb_models.ModelParams (model code, up axis, axis order, push-out and step-up settings).
         ground: int8 (M,) recorded on-ground flag after the frame (1, 0, or -1 when not recorded).
+        flags_only: bool; True writes only ``flags`` (the other outputs may then hold any number
+            of rows, even none): a check reads the rest only for the few rows that diverge, and
+            writing ~300 bytes per row it never reads costs memory traffic.
     Outputs (preallocated, every slot written; may be uninitialised):
         ref_end float (M, 3); npass int8 (M,) passes run; state int8 (M,) CLEAR/HIT/STARTED_INSIDE;
         t_out float (M, P); n_out int8 (M, P, 3); v_out int64 (M, P, 3); type_out int32 (M, P);
@@ -223,12 +249,19 @@ def check_rows(start, motion, rec_end, half, world, skin, passes, tol, broad, mp
     tasks = (M + ROWS_PER_TASK - 1) // ROWS_PER_TASK
     for task in prange(tasks):
         stack = np.empty((STACK_ROWS, 6), np.int64)
-        # check_row is inlined here; numba's reference-count pruning then leaves no per-row
-        # updates of the shared arrays' counts (measured: a separate row-loop function is ~1.7x
-        # slower, and per-row counts stop two threads from scaling).
-        for i in range(task * ROWS_PER_TASK, min(M, (task + 1) * ROWS_PER_TASK)):
-            check_row(i, start, motion, rec_end, half, world, skin, passes, tol, broad, mp, ground, stack,
-                      ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, raised, climb, flags, err)
+        r0, r1 = task * ROWS_PER_TASK, min(M, (task + 1) * ROWS_PER_TASK)
+        if flags_only:
+            P = t_out.shape[1]
+            check_span(r0, r1, start, motion, rec_end, half, world, skin, passes, tol, broad, mp, ground, stack,
+                       np.empty((1, 3), ref_end.dtype), np.empty(1, np.int8), np.empty(1, np.int8),
+                       np.empty((1, P), t_out.dtype), np.empty((1, P, 3), np.int8), np.empty((1, P, 3), np.int64),
+                       np.empty((1, P), np.int32), np.empty((1, P), np.int32), np.empty((1, P + 1, 3), pts.dtype),
+                       np.empty(1, np.bool_), np.empty(1, climb.dtype), np.empty(1, np.int32),
+                       np.empty((1, err.shape[1]), err.dtype), True, flags)
+        else:
+            check_span(r0, r1, start, motion, rec_end, half, world, skin, passes, tol, broad, mp, ground, stack,
+                       ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, raised, climb, flags,
+                       err, False, flags)
 
 
 @kernel(parallel=True, nogil=True)

@@ -117,26 +117,49 @@ def solve_rows(world: VoxelWorld, start, motion, recorded_end, half, settings: S
             None when the trace has none.
     """
     dt = settings.dtype
-    ft = dt.type
-    s, m, e, h = (_rows(a, dt) for a in (start, motion, recorded_end, half))
+    rows = [_rows(a, dt) for a in (start, motion, recorded_end, half)]
+    M = len(rows[0])
     if out is None:
-        out = RowResults.alloc(len(s), settings.passes, dt)
-    elif out.toi.dtype != dt or out.toi.shape[1] != settings.passes or len(out.toi) < len(s):
+        out = RowResults.alloc(M, settings.passes, dt)
+    elif out.toi.dtype != dt or out.toi.shape[1] != settings.passes or len(out.toi) < M:
         raise ValueError(f"out holds {len(out.toi)} rows of {out.toi.shape[1]} {out.toi.dtype} passes; "
-                         f"{len(s)} rows of {settings.passes} {dt} passes needed")
+                         f"{M} rows of {settings.passes} {dt} passes needed")
     else:
-        out = out.head(len(s))
-    if not len(s):
-        return out
+        out = out.head(M)
+    if M:
+        _run(world, rows, settings, broad, out, out.flags, False, up, grounded)
+    return out
+
+
+def flag_rows(world: VoxelWorld, start, motion, recorded_end, half, settings: SolverSettings,
+              flags: np.ndarray, broad: str = "auto", up: str = "y", grounded=None) -> np.ndarray:
+    """The divergence flags of :func:`solve_rows` alone, written into ``flags`` (int32, at least M
+    rows; its first M returned). Nothing else is kept, so nothing else is written: a check calls
+    :func:`solve_rows` again for the few rows whose flags are set (same results, the rows being
+    independent)."""
+    dt = settings.dtype
+    rows = [_rows(a, dt) for a in (start, motion, recorded_end, half)]
+    M = len(rows[0])
+    if flags.dtype != np.int32 or len(flags) < M:
+        raise ValueError(f"flags holds {len(flags)} {flags.dtype.name} rows; {M} int32 rows needed")
+    if M:
+        _run(world, rows, settings, broad, RowResults.alloc(0, settings.passes, dt), flags[:M], True, up, grounded)
+    return flags[:M]
+
+
+def _run(world, rows, settings, broad, out: RowResults, flags, flags_only: bool, up, grounded):
+    """One call of the row kernel on prepared rows (float (M, 3) of the settings' precision)."""
+    dt = settings.dtype
+    ft = dt.type
+    M = len(rows[0])
     vs = world.voxel_size
-    g = np.full(len(s), -1, np.int8) if grounded is None else np.ascontiguousarray(grounded, np.int8).reshape(-1)
-    if len(g) != len(s):
-        raise ValueError(f"grounded holds {len(g)} rows, {len(s)} needed")
-    nb_rows.check_rows(s, m, e, h, kernel_world(world, dt), ft(settings.skin * vs), np.int64(settings.passes),
+    g = np.full(M, -1, np.int8) if grounded is None else np.ascontiguousarray(grounded, np.int8).reshape(-1)
+    if len(g) != M:
+        raise ValueError(f"grounded holds {len(g)} rows, {M} needed")
+    nb_rows.check_rows(*rows, kernel_world(world, dt), ft(settings.skin * vs), np.int64(settings.passes),
                        ft(settings.tolerance * vs), np.int64(BROAD_PHASES[broad]), model_params(settings, up, vs, dt),
                        g, out.ref_end, out.npass, out.state, out.toi, out.normal, out.voxel, out.block,
-                       out.candidates, out.points, out.raised, out.climb, out.flags, out.error)
-    return out
+                       out.candidates, out.points, out.raised, out.climb, flags, out.error, flags_only)
 
 
 def overlap_depths(world: VoxelWorld, centre, half, precision: str = "float64") -> np.ndarray:

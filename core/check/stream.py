@@ -8,7 +8,7 @@ import numpy as np
 from resweep.core.check import nb_gather
 from resweep.core.check import validity
 from resweep.core.check.kinds import BY_NAME, DISCONTINUITY, INVALID, KINDS, SEVERITY, kind_mask, kinds_of
-from resweep.core.check.rows import RowResults, solve_rows
+from resweep.core.check.rows import RowResults, flag_rows, solve_rows
 from resweep.core.solve.settings import SolverSettings
 from resweep.core.format.reader import Trace
 
@@ -159,13 +159,11 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
                                  fr, col, tol, start, motion, end, gap, disc)
             half = blk.half[0][col] if blk.half.strides[0] == 0 else blk.half[fr, col]
             ground = None if blk.grounded is None else blk.grounded[fr, col]
-            rows = solve_rows(world, start, motion, end, half, settings, out=buf.rows_out(M), up=trace.up_axis,
-                              grounded=ground)
-            rows.flags |= disc.astype(np.int32) << DISCONTINUITY
-            rows.error[disc, DISCONTINUITY] = gap[disc]
+            flags, rows, kept = _solve_segment(world, settings, buf, (start, motion, end, half), ground, gap, disc,
+                                               trace.up_axis, every_row=on_block is not None)
             report.entity_frames += M
-            _count(report, rows.flags)
-            _collect(report, trace, rows, blk, fr, col, limit, dt, settings.step_height > 0)
+            _count(report, flags)
+            _collect(report, trace, rows, blk, fr[kept], col[kept], limit, dt, settings.step_height > 0)
             if on_block is not None:
                 on_block(BlockResult(fr + blk.f0, col, rows))
         prev_end = np.asarray(blk.end[-1], np.float64)
@@ -174,6 +172,31 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
         if progress is not None:
             progress(blk.f1, trace.frame_count)
     return report
+
+
+def _solve_segment(world, settings, buf, rows_in, ground, gap, disc, up, every_row: bool):
+    """Solve and classify the M rows of one segment: (flags int32 (M,) with the discontinuity bit,
+    RowResults of the kept rows, int64 indices of the kept rows). ``rows_in``: start, motion,
+    recorded end, half float (M, 3); ``gap`` float64 and ``disc`` bool (M,) from the gather.
+
+    With ``every_row`` every row is kept with all its results (a block listener reads them);
+    otherwise the kernel writes only the flags, and the rows that diverge are solved again with
+    every output for their details (counts need only the flags)."""
+    M = len(disc)
+    if every_row:
+        rows = solve_rows(world, *rows_in, settings, out=buf.rows_out(M), up=up, grounded=ground)
+        kept = np.arange(M)
+    else:
+        flags = flag_rows(world, *rows_in, settings, buf.flags_out(M), up=up, grounded=ground)
+        kept = np.flatnonzero(flags | disc)
+        rows = solve_rows(world, *(a[kept] for a in rows_in), settings, out=buf.rows_out(len(kept)), up=up,
+                          grounded=None if ground is None else ground[kept])
+    d = disc[kept]
+    rows.flags |= d.astype(np.int32) << DISCONTINUITY
+    rows.error[d, DISCONTINUITY] = gap[kept][d]
+    if every_row:
+        return rows.flags, rows, kept
+    return flags | (disc.astype(np.int32) << DISCONTINUITY), rows, kept
 
 
 class _Buffers:
@@ -190,12 +213,18 @@ class _Buffers:
             dt = self.dtype
             self.inputs = (np.empty((m, 3), dt), np.empty((m, 3), dt), np.empty((m, 3), dt), np.empty(m),
                            np.empty(m, bool))
+            self.flags = np.empty(m, np.int32)
             self.rows = RowResults.alloc(m, self.passes, dt) if self.keep_rows else None
 
     def rows_in(self, m: int):
         """start, motion, recorded end float (m, 3); gap float64 (m,); disc bool (m,)."""
         self._grow(m)
         return tuple(a[:m] for a in self.inputs)
+
+    def flags_out(self, m: int) -> np.ndarray:
+        """int32 (m,) flags of every row of a segment."""
+        self._grow(m)
+        return self.flags[:m]
 
     def rows_out(self, m: int):
         self._grow(m)

@@ -202,11 +202,21 @@ def kernel(**options):
     return _cached(njit(cache=True, **options))
 
 
-try:
-    from numba.core.options import TargetOptions
-    _NO_REFCOUNT = {"_nrt": False} if hasattr(TargetOptions, "_nrt") else {}
-except ImportError:  # pragma: no cover - depends on the numba release
-    _NO_REFCOUNT = {}
+def _no_refcount_option() -> dict:
+    """numba's option that compiles a function without reference counting, where this numba
+    release has it (the CPU target's options declare ``_nrt``; older releases declared it on the
+    generic ``TargetOptions``)."""
+    for module, name in (("numba.core.cpu", "CPUTargetOptions"), ("numba.core.options", "TargetOptions")):
+        try:
+            options = getattr(__import__(module, fromlist=[name]), name)
+        except (ImportError, AttributeError):  # pragma: no cover - depends on the numba release
+            continue
+        if hasattr(options, "_nrt"):
+            return {"_nrt": False}
+    return {}  # pragma: no cover - a release without the option: counted, only slower
+
+
+_NO_REFCOUNT = _no_refcount_option()
 
 #: Decorator for kernels that neither allocate nor keep arrays (allocation fails to compile).
 hot = kernel(**_NO_REFCOUNT)

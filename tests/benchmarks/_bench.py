@@ -90,6 +90,30 @@ def cpu_timed(cmd: list[str], env=None) -> tuple[float, float]:
     return wall, usage.ru_utime + usage.ru_stime
 
 
+@dataclass
+class Runs:
+    """Medians over repeated runs of one command: wall seconds, CPU seconds (the process and its
+    reaped children), peak RSS in bytes; ``walls`` and ``cpus`` keep every run in order."""
+
+    wall: float
+    cpu: float
+    rss: int
+    walls: list
+    cpus: list
+    out: str
+
+
+def median_runs(cmd: list[str], repeat: int, env=None) -> Runs:
+    """Run ``cmd`` ``repeat`` times: medians of wall time, CPU time and peak RSS."""
+    walls, cpus, rss, out = [], [], [], ""
+    for _ in range(repeat):
+        wall, usage, out = _spawn(cmd, env)
+        walls.append(wall)
+        cpus.append(usage.ru_utime + usage.ru_stime)
+        rss.append(usage.ru_maxrss * 1024)
+    return Runs(statistics.median(walls), statistics.median(cpus), int(statistics.median(rss)), walls, cpus, out)
+
+
 def median_timed(cmd: list[str], repeat: int, env=None) -> tuple[float, int, str]:
     """Median wall time and median peak RSS over ``repeat`` runs, and the last run's stdout."""
     runs = [timed(cmd, env) for _ in range(repeat)]

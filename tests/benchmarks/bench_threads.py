@@ -55,7 +55,7 @@ def run(args) -> list[Row]:
         nb_check.check_rows(s, m, e, h, kw, np.float64(st.skin), np.int64(st.passes), np.float64(st.tolerance),
                             np.int64(2), mp, ground, out.ref_end, out.npass, out.state, out.toi, out.normal,
                             out.voxel, out.block, out.candidates, out.points, out.raised, out.climb, out.flags,
-                            out.error)
+                            out.error, False)
 
     def whole_check():
         with open_trace(path) as tr:

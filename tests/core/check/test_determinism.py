@@ -159,19 +159,25 @@ def test_chunk_order_and_block_size_do_not_matter(base, tmp_path):
 
 
 def test_each_entity_frame_is_solved_once_and_edits_applied_forward(base, monkeypatch):
-    # No repeated work: the classification reuses the reference solve (one solve per active
-    # entity-frame, no second pass over divergent rows), the world is built once per check and
-    # edits are applied as the stream moves forward, never by restarting from the recorded chunks.
+    # No repeated work: the classification reuses the reference solve (one flagging solve per
+    # active entity-frame; only divergent rows are solved again, for their details), the world is
+    # built once per check and edits are applied as the stream moves forward, never by restarting
+    # from the recorded chunks.
     import resweep.core.check.stream as check_mod
     from resweep.core.world.voxel_world import VoxelWorld
 
     kw, path = base
-    solved, frames, built = [], [], []
+    solved, flagged, frames, built = [], [], [], []
     real_solve, real_advance, real_init = check_mod.solve_rows, VoxelWorld.advance_to, VoxelWorld.__init__
+    real_flag = check_mod.flag_rows
 
     def counting_solve(world, start, *a, **k):
         solved.append(len(start))
         return real_solve(world, start, *a, **k)
+
+    def counting_flag(world, start, *a, **k):
+        flagged.append(len(start))
+        return real_flag(world, start, *a, **k)
 
     def recording_advance(self, frame):
         frames.append(frame)
@@ -182,10 +188,12 @@ def test_each_entity_frame_is_solved_once_and_edits_applied_forward(base, monkey
         real_init(self, *a, **k)
 
     monkeypatch.setattr(check_mod, "solve_rows", counting_solve)
+    monkeypatch.setattr(check_mod, "flag_rows", counting_flag)
     monkeypatch.setattr(VoxelWorld, "advance_to", recording_advance)
     monkeypatch.setattr(VoxelWorld, "__init__", counting_init)
     with open_trace(path) as tr:
         report = check_trace(tr, SolverSettings(), rows_per_block=500)
-    assert sum(solved) == report.entity_frames == int(kw["active"].sum())
+    assert sum(flagged) == report.entity_frames == int(kw["active"].sum())
+    assert 0 < sum(solved) <= sum(report.counts.values())  # each re-solved row has some kind
     assert len(built) == 1
     assert frames == sorted(frames) and len(frames) >= len(np.unique(kw["edits"][:, 0]))
