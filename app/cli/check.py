@@ -24,11 +24,12 @@ _frozen = False
 
 
 def compile_notice(precision: str, frame_dtype=None, stream=sys.stderr, quiet: bool = False):
-    """Build the solver kernels; say so on ``stream`` if that takes more than a second."""
+    """Build the solver kernels; say so on ``stream`` if they are not on disk (cached or prebuilt)
+    and compiling takes more than a second."""
     global _frozen
     msg = "resweep: compiling solver kernels (first run after install; later runs use the cache)...\n"
     timer = threading.Timer(1.0, lambda: (stream.write(msg), stream.flush()))
-    if not quiet:
+    if not quiet and not _kernels_on_disk():  # loading a cached build can pass 1 s on a busy machine
         timer.start()
     try:
         warm_up(precision, frame_dtype)
