@@ -3,7 +3,8 @@ and ``snapshot`` as users run them (isolated validator included), in one runner 
 
 Pass criteria (issue: hostile and broken traces): 0 crashes, 0 tracebacks, 0 hangs, exit
 statuses only 0/1/2, stderr exactly one line naming the file on status 2 (nothing otherwise),
-peak memory under 1 GB, inputs unchanged. ``RESWEEP_FUZZ_CASES`` changes the case count.
+peak memory under 1 GB (the runner's from after its kernel warm-up, and every validator child's), inputs
+unchanged. ``RESWEEP_FUZZ_CASES`` changes the case count.
 """
 from __future__ import annotations
 
