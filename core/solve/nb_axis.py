@@ -67,6 +67,10 @@ def nearest_ahead(p, h, world, a, d):
         near = fl(vs, u) * vs - lead if d > 0 else lead - (fl(vs, u) + fl(vs, 1)) * vs
         if near > best:
             break
+        # A layer wholly behind the leading face holds only boxes with gap < 0 (ignored).
+        far = (fl(vs, u) + fl(vs, 1)) * vs - lead if d > 0 else lead - fl(vs, u) * vs
+        if far < 0:
+            continue
         for s1 in range(lo1, hi1 + 1):
             for s2 in range(lo2, hi2 + 1):
                 x, y, z = voxel_of(a, u, s1, s2)
