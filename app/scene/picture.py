@@ -13,12 +13,12 @@ if sys.platform.startswith("linux") and not os.environ.get("DISPLAY"):
     os.environ.setdefault("VTK_DEFAULT_OPENGL_WINDOW", "vtkEGLRenderWindow")
 
 import numpy as np  # noqa: E402
-import pyvista as pv  # noqa: E402
 from PIL import Image  # noqa: E402
 
 from resweep.core.format.atomic import write_atomic  # noqa: E402
 
 from resweep.app.scene.caption import BandLayout, band_layout, caption_lines, render_band  # noqa: E402
+from resweep.app.scene.offscreen import OffscreenPlotter  # noqa: E402
 from resweep.app.scene.viewport import Viewport, ViewOptions  # noqa: E402
 
 MIN_VIEW_H = 8  # pixels of 3-D view kept however small the picture
@@ -43,14 +43,14 @@ class PictureMaker:
     """
 
     def __init__(self, session, size=(1280, 720), options=ViewOptions(), camera: str = "story",
-                 reframe: bool = True):
+                 reframe: bool = True, plotter_type=OffscreenPlotter):
         self.session = session
         self.size = tuple(int(v) for v in size)
         self.options = options
         self.camera = camera
         self.reframe = reframe
         W, H = self.size
-        self.plotter = pv.Plotter(off_screen=True, window_size=(W, max(MIN_VIEW_H, H // 2)))
+        self.plotter = plotter_type(window_size=(W, max(MIN_VIEW_H, H // 2)))
         self.vp = Viewport(self.plotter)
         self.vp.enable_inset()
         self.vp.set_session(session)

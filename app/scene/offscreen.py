@@ -1,0 +1,231 @@
+"""A small off-screen plotter built on VTK alone, for pictures made without a window.
+
+:class:`~resweep.app.scene.viewport.Viewport` draws on any object with the few parts of a pyvista
+``Plotter`` it uses (``renderer``, ``render_window``, ``camera``, ``add_mesh``, ``add_axes``,
+``set_background``, ``render``, ``screenshot``, ``reset_camera``, ``close``). The viewer hands it
+pyvistaqt's plotter; ``resweep snapshot`` hands it an :class:`OffscreenPlotter`, which sets up the
+render window, lights, actors and axes marker the way pyvista's plotter does for the calls the
+viewport makes (so the pixels are the same) but imports only the VTK modules a picture needs:
+pyvista's plotting package, with matplotlib and every VTK module it loads, is most of a warm
+snapshot's start-up. ``tests/app/scene/test_offscreen.py`` holds the two plotters' pictures equal.
+"""
+from __future__ import annotations
+
+import os
+import sys
+
+if sys.platform.startswith("linux") and not os.environ.get("DISPLAY"):
+    # Go straight to the EGL window: trying X first without a display logs a warning on stderr.
+    os.environ.setdefault("VTK_DEFAULT_OPENGL_WINDOW", "vtkEGLRenderWindow")
+
+import numpy as np  # noqa: E402
+import vtkmodules.vtkRenderingFreeType  # noqa: E402,F401  (text of the axes labels and the magnified view)
+import vtkmodules.vtkRenderingOpenGL2  # noqa: E402,F401  (the OpenGL implementations of the classes below)
+from vtkmodules.util.numpy_support import vtk_to_numpy  # noqa: E402
+from vtkmodules.vtkInteractionWidgets import vtkOrientationMarkerWidget  # noqa: E402
+from vtkmodules.vtkRenderingAnnotation import vtkAxesActor  # noqa: E402
+from vtkmodules.vtkRenderingCore import (vtkActor, vtkDataSetMapper, vtkLightKit,  # noqa: E402
+                                         vtkRenderer, vtkRenderWindow, vtkWindowToImageFilter)
+from vtkmodules.vtkRenderingUI import vtkGenericRenderWindowInteractor  # noqa: E402
+
+#: Multisamples of the render window (pyvista's default theme: MSAA with 8 samples).
+MULTI_SAMPLES = 8
+#: pyvista's default theme: mesh colour (0..255), and the lighting of every mesh it adds.
+_MESH_RGB = (173, 216, 230)
+_SPECULAR_POWER = 100.0
+_POINT_SIZE = 5.0
+
+
+def _rgb(c) -> tuple[float, float, float]:
+    """0..1 rgb as pyvista passes colours to VTK: rounded to 8 bits per channel."""
+    if c == "black":
+        c = (0.0, 0.0, 0.0)
+    return tuple(round(float(v) * 255) / 255 for v in c)
+
+
+def mesh_actor(mesh, color=None, opacity=1.0, lighting=True, line_width=None) -> vtkActor:
+    """A vtkActor drawing ``mesh`` (vtkPolyData) without scalars in ``color`` (0..1 rgb), with the
+    property defaults pyvista's theme gives a mesh (flat shading, specular power 100, 5 px points)."""
+    mapper = vtkDataSetMapper()
+    mapper.SetInputData(mesh)
+    mapper.SetInterpolateScalarsBeforeMapping(True)
+    mapper.ScalarVisibilityOff()
+    actor = vtkActor()
+    actor.SetMapper(mapper)
+    prop = actor.GetProperty()
+    prop.SetColor(*_rgb(color if color is not None else [c / 255 for c in _MESH_RGB]))
+    prop.SetInterpolationToFlat()
+    prop.SetSpecularPower(_SPECULAR_POWER)
+    prop.SetPointSize(_POINT_SIZE)
+    prop.SetOpacity(float(opacity))
+    prop.SetLighting(bool(lighting))
+    if line_width is not None:
+        prop.SetLineWidth(float(line_width))
+    return actor
+
+
+class OffscreenCamera:
+    """The renderer's active camera with pyvista-style ``position``, ``focal_point`` and ``up``
+    (tuples of 3 floats, world units)."""
+
+    def __init__(self, renderer):
+        self._renderer = renderer
+
+    @property
+    def _cam(self):
+        return self._renderer.GetActiveCamera()
+
+    @property
+    def position(self):
+        return self._cam.GetPosition()
+
+    @position.setter
+    def position(self, value):
+        self._cam.SetPosition(*(float(v) for v in value))
+
+    @property
+    def focal_point(self):
+        return self._cam.GetFocalPoint()
+
+    @focal_point.setter
+    def focal_point(self, value):
+        self._cam.SetFocalPoint(*(float(v) for v in value))
+
+    @property
+    def up(self):
+        return self._cam.GetViewUp()
+
+    @up.setter
+    def up(self, value):
+        self._cam.SetViewUp(*(float(v) for v in value))
+
+
+class OffscreenPlotter:
+    """One off-screen render window with one main renderer (light kit, MSAA), sized
+    ``window_size`` (W, H) pixels. Use :meth:`close` when done."""
+
+    def __init__(self, window_size=(1024, 768)):
+        self.render_window = rw = vtkRenderWindow()
+        rw.SetMultiSamples(0)
+        rw.SetBorders(True)
+        self.renderer = ren = vtkRenderer()
+        rw.AddRenderer(ren)
+        rw.SetOffScreenRendering(1)
+        # Widgets (the axes marker) need an interactor; this one has no event loop.
+        self._iren = vtkGenericRenderWindowInteractor()
+        self._iren.SetRenderWindow(rw)
+        self._iren.SetLightFollowCamera(False)
+        rw.SetSize(int(window_size[0]), int(window_size[1]))
+        rw.SetMultiSamples(MULTI_SAMPLES)
+        vtkLightKit().AddLightsToRenderer(ren)
+        lights = ren.GetLights()
+        for i in range(lights.GetNumberOfItems()):
+            light = lights.GetItemAsObject(i)
+            for get, put in ((light.GetAmbientColor, light.SetAmbientColor),
+                             (light.GetDiffuseColor, light.SetDiffuseColor),
+                             (light.GetSpecularColor, light.SetSpecularColor)):
+                put(*_rgb(get()))
+        ren.AutomaticLightCreationOff()
+        ren.LightFollowCameraOn()
+        self.camera = OffscreenCamera(ren)
+        self._axes_widget = None
+
+    def set_background(self, color, top=None) -> None:
+        """Background ``color`` (0..1 rgb), a vertical gradient up to ``top`` when given."""
+        self.renderer.SetBackground(*color)
+        if top is not None:
+            self.renderer.SetGradientBackground(True)
+            self.renderer.SetBackground2(*top)
+
+    def add_mesh(self, mesh, color=None, opacity=1.0, lighting=True, style="surface", line_width=None,
+                 point_size=None, render_points_as_spheres=False, show_edges=False, edge_color=None,
+                 scalars=None, rgb=False, preference="point", show_scalar_bar=False, reset_camera=False):
+        """An actor drawing ``mesh`` (a vtkPolyData) in the main renderer, with the properties the
+        same keywords give in pyvista's ``add_mesh``; ``scalars`` with ``rgb``: a uint8 (n, 3)
+        cell array of that name gives the colours directly."""
+        actor = mesh_actor(mesh, color, opacity, lighting, line_width)
+        mapper, prop = actor.GetMapper(), actor.GetProperty()
+        if scalars is not None:
+            mapper.SetScalarModeToUseCellFieldData() if preference == "cell" else \
+                mapper.SetScalarModeToUsePointFieldData()
+            mapper.SelectColorArray(scalars)
+            mapper.SetColorModeToDirectScalars()
+            mapper.ScalarVisibilityOn()
+        if style == "wireframe":
+            prop.SetRepresentationToWireframe()
+        if point_size is not None:
+            prop.SetPointSize(float(point_size))
+        prop.SetRenderPointsAsSpheres(bool(render_points_as_spheres))
+        if show_edges:
+            prop.EdgeVisibilityOn()
+            prop.SetEdgeColor(*_rgb(edge_color))
+        self.renderer.AddActor(actor)
+        return actor
+
+    def add_axes(self, xlabel="X", ylabel="Y", zlabel="Z", color=(0.0, 0.0, 0.0), line_width=2,
+                 x_color=(1, 0, 0), y_color=(0, 1, 0), z_color=(0, 0, 1)) -> None:
+        """The axes marker in the lower left fifth of the window, as pyvista's ``add_axes`` draws it."""
+        color, x_color, y_color, z_color = (_rgb(c) for c in (color, x_color, y_color, z_color))
+        axes = vtkAxesActor()
+        for rgb, shaft, tip in ((x_color, axes.GetXAxisShaftProperty(), axes.GetXAxisTipProperty()),
+                                (y_color, axes.GetYAxisShaftProperty(), axes.GetYAxisTipProperty()),
+                                (z_color, axes.GetZAxisShaftProperty(), axes.GetZAxisTipProperty())):
+            for prop in (shaft, tip):
+                prop.SetColor(*rgb)
+                prop.SetAmbient(0.5)
+            shaft.SetLineWidth(line_width)
+        axes.SetXAxisLabelText(xlabel)
+        axes.SetYAxisLabelText(ylabel)
+        axes.SetZAxisLabelText(zlabel)
+        axes.SetConeRadius(0.4)
+        axes.SetNormalizedShaftLength(0.8, 0.8, 0.8)
+        axes.SetNormalizedTipLength(0.2, 0.2, 0.2)
+        for label in (axes.GetXAxisCaptionActor2D(), axes.GetYAxisCaptionActor2D(),
+                      axes.GetZAxisCaptionActor2D()):
+            label.SetWidth(0.25)
+            label.SetHeight(0.1)
+            tp = label.GetCaptionTextProperty()
+            tp.SetColor(*color)
+            tp.SetShadow(False)
+        if self._axes_widget is not None:  # one marker: a new one replaces the old
+            self._axes_widget.SetViewport(0.0, 0.0, 0.0001, 0.0001)
+            self._axes_widget.EnabledOff()
+        widget = vtkOrientationMarkerWidget()
+        widget.SetOrientationMarker(axes)
+        widget.SetInteractor(self._iren)
+        widget.SetEnabled(1)
+        widget.SetInteractive(False)
+        widget.SetCurrentRenderer(self.renderer)
+        widget.SetViewport(0.0, 0.0, 0.2, 0.2)
+        self._axes_widget = widget
+        self._axes = axes
+
+    def reset_camera(self) -> None:
+        self.renderer.ResetCamera()
+
+    def render(self) -> None:
+        self.render_window.Render()
+
+    def screenshot(self, return_img=True) -> np.ndarray:
+        """uint8 (H, W, 3) picture of the window as last rendered (top row first)."""
+        f = vtkWindowToImageFilter()
+        f.SetInput(self.render_window)
+        f.SetScale(1)
+        f.FixBoundaryOn()
+        f.ShouldRerenderOff()
+        f.SetInputBufferTypeToRGB()
+        f.ReadFrontBufferOn()
+        f.Update()
+        img = f.GetOutput()
+        w, h, _ = img.GetDimensions()
+        arr = vtk_to_numpy(img.GetPointData().GetScalars()).reshape(h, w, -1)
+        return np.ascontiguousarray(arr[::-1])
+
+    def close(self) -> None:
+        if self._axes_widget is not None:
+            self._axes_widget.EnabledOff()
+            self._axes_widget = None
+        if self.render_window is not None:
+            self.render_window.Finalize()
+        self._iren = None
+        self.render_window = None
