@@ -21,7 +21,9 @@ if sys.platform.startswith("linux") and not os.environ.get("DISPLAY"):
 import numpy as np  # noqa: E402
 import vtkmodules.vtkRenderingFreeType  # noqa: E402,F401  (text of the axes labels and the magnified view)
 import vtkmodules.vtkRenderingOpenGL2  # noqa: E402,F401  (the OpenGL implementations of the classes below)
-from vtkmodules.util.numpy_support import vtk_to_numpy  # noqa: E402
+from vtkmodules.util.numpy_support import numpy_to_vtk, numpy_to_vtkIdTypeArray, vtk_to_numpy  # noqa: E402
+from vtkmodules.vtkCommonCore import vtkPoints  # noqa: E402
+from vtkmodules.vtkCommonDataModel import vtkCellArray, vtkPolyData  # noqa: E402
 from vtkmodules.vtkInteractionWidgets import vtkOrientationMarkerWidget  # noqa: E402
 from vtkmodules.vtkRenderingAnnotation import vtkAxesActor  # noqa: E402
 from vtkmodules.vtkRenderingCore import (vtkActor, vtkDataSetMapper, vtkLightKit,  # noqa: E402
@@ -64,6 +66,101 @@ def mesh_actor(mesh, color=None, opacity=1.0, lighting=True, line_width=None) ->
     return actor
 
 
+class OffscreenMesh(vtkPolyData):
+    """A vtkPolyData with the few pyvista ``PolyData`` members the viewport uses (``points``,
+    ``n_points``, ``lines``, ``verts``, ``regular_faces``, ``cell_data[name] =``, ``copy_from``,
+    ``from_regular_faces``), built the same way, so an :class:`OffscreenPlotter` draws the same
+    cells without importing pyvista. Points keep a float dtype given (float32 or float64)."""
+
+    def __init__(self, points=None, lines=None):
+        super().__init__()
+        if points is not None:
+            self.points = points
+        if lines is not None:
+            self.lines = lines
+
+    @classmethod
+    def from_regular_faces(cls, points, faces) -> "OffscreenMesh":
+        """Mesh of float (m, 3) ``points`` and int (n, k) ``faces`` (k corners each)."""
+        mesh = cls(points)
+        mesh.regular_faces = faces
+        return mesh
+
+    @property
+    def n_points(self) -> int:
+        return self.GetNumberOfPoints()
+
+    @property
+    def points(self) -> np.ndarray:
+        """(m, 3) writable view of the points (call ``GetPoints().Modified()`` after writing)."""
+        pts = self.GetPoints()
+        return np.zeros((0, 3)) if pts is None else vtk_to_numpy(pts.GetData())
+
+    @points.setter
+    def points(self, value):
+        arr = np.asarray(value)
+        if arr.dtype not in (np.float32, np.float64):
+            arr = arr.astype(np.float64)
+        pts = vtkPoints()
+        pts.SetData(numpy_to_vtk(np.ascontiguousarray(arr.reshape(-1, 3)), deep=True))
+        self.SetPoints(pts)
+
+    @property
+    def cell_data(self):
+        return _CellArrays(self)
+
+    @staticmethod
+    def _cells(legacy) -> vtkCellArray:
+        """vtkCellArray of cells in the legacy layout [k, i0 .. ik-1, k, ...] (int)."""
+        cells = vtkCellArray()
+        cells.ImportLegacyFormat(numpy_to_vtkIdTypeArray(np.ascontiguousarray(legacy, np.int64), deep=True))
+        return cells
+
+    @property
+    def lines(self):
+        raise AttributeError("OffscreenMesh.lines is write-only")
+
+    @lines.setter
+    def lines(self, legacy):
+        self.SetLines(self._cells(legacy))
+
+    @property
+    def verts(self):
+        raise AttributeError("OffscreenMesh.verts is write-only")
+
+    @verts.setter
+    def verts(self, legacy):
+        self.SetVerts(self._cells(legacy))
+
+    @property
+    def regular_faces(self):
+        raise AttributeError("OffscreenMesh.regular_faces is write-only")
+
+    @regular_faces.setter
+    def regular_faces(self, faces):
+        faces = np.asarray(faces, np.int64)
+        n, k = faces.shape
+        cells = vtkCellArray()
+        cells.SetData(numpy_to_vtkIdTypeArray(np.arange(0, n * k + 1, k, dtype=np.int64), deep=True),
+                      numpy_to_vtkIdTypeArray(np.ascontiguousarray(faces.ravel()), deep=True))
+        self.SetPolys(cells)
+
+    def copy_from(self, other) -> None:
+        self.DeepCopy(other)
+
+
+class _CellArrays:
+    """``mesh.cell_data[name] = array``: adds (or replaces) a named cell array, (n,) or (n, c)."""
+
+    def __init__(self, mesh):
+        self._mesh = mesh
+
+    def __setitem__(self, name: str, values) -> None:
+        arr = numpy_to_vtk(np.ascontiguousarray(values), deep=True)
+        arr.SetName(name)
+        self._mesh.GetCellData().AddArray(arr)
+
+
 class OffscreenCamera:
     """The renderer's active camera with pyvista-style ``position``, ``focal_point`` and ``up``
     (tuples of 3 floats, world units)."""
@@ -103,6 +200,9 @@ class OffscreenCamera:
 class OffscreenPlotter:
     """One off-screen render window with one main renderer (light kit, MSAA), sized
     ``window_size`` (W, H) pixels. Use :meth:`close` when done."""
+
+    #: The meshes this plotter draws (the viewport makes its meshes of this class).
+    mesh_type = OffscreenMesh
 
     def __init__(self, window_size=(1024, 768)):
         self.render_window = rw = vtkRenderWindow()
