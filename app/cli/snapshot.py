@@ -9,6 +9,10 @@ from resweep.app.cli.solver_args import settings_from
 from resweep.app.cli.exits import EXIT_OK, EXIT_USAGE
 from resweep.app.cli.output import output_problem
 
+#: Every picture is written and closed when ``run`` returns: the process may skip the
+#: interpreter's clean-up (see ``main.leave_now``).
+QUICK_EXIT = True
+
 #: Suffixes of the pictures snapshot writes (the scene's PICTURE_TYPES; restated here so that a
 #: refused name fails before pyvista loads, and a test holds the two equal).
 SUFFIXES = (".png", ".jpg", ".jpeg")

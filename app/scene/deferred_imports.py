@@ -10,6 +10,7 @@ is read at once. pyvista's charts import the Agg canvas that way.)
 from __future__ import annotations
 
 import importlib
+import importlib.machinery
 import importlib.util
 import sys
 import types
@@ -33,13 +34,32 @@ def defer_plot_modules(names=DEFERRED) -> None:
     for name in names:
         if name in sys.modules:
             continue
-        try:
-            spec = importlib.util.find_spec(name)  # imports the parent package (light)
-        except ImportError:
-            continue
+        spec = _spec_without_import(name)
         if spec is None:
             continue
         mod = _Deferred(name)
         mod.__spec__ = spec  # the import system reads it; it must not trigger the real import
         mod.__file__ = spec.origin
         sys.modules[name] = mod
+
+
+def _spec_without_import(name: str):
+    """The module spec of ``name``, found without importing its parent packages (``find_spec``
+    of a dotted name imports the parents, and matplotlib's package alone is a tenth of a
+    picture's start-up); None when it is not installed."""
+    head, _, _ = name.partition(".")
+    try:
+        spec = importlib.util.find_spec(head) if head not in sys.modules else sys.modules[head].__spec__
+    except (ImportError, ValueError):
+        return None
+    parts = name.split(".")
+    for i in range(1, len(parts)):
+        dotted = ".".join(parts[: i + 1])
+        parent = sys.modules.get(".".join(parts[:i]))
+        if parent is not None and not isinstance(parent, _Deferred):
+            spec = importlib.util.find_spec(dotted)
+        elif spec is None or spec.submodule_search_locations is None:
+            return None
+        else:
+            spec = importlib.machinery.PathFinder.find_spec(dotted, list(spec.submodule_search_locations))
+    return spec

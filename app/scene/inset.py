@@ -9,11 +9,12 @@ magnification. The second renderer shares the main view's actors, so it always s
 from __future__ import annotations
 
 import numpy as np
-import pyvista as pv
 from vtkmodules.vtkRenderingCore import vtkBillboardTextActor3D, vtkRenderer, vtkTextActor
 
 from resweep.app.scene import style as S
+from resweep.app.scene.offscreen import mesh_actor
 from resweep.app.scene.story import axis_words, inset_radius
+from resweep.app.scene.voxel_mesh import mesh_type
 
 SPLIT = 0.6  # fraction of the window width the main view keeps while the magnified view shows
 
@@ -63,12 +64,8 @@ class MagnifiedView:
         self.top.SetActiveCamera(self.ren.GetActiveCamera())
         for role, actor in actors.items():
             (self.over if role in over_roles else self.top if role in top_roles else self.ren).AddActor(actor)
-        self.dim_mesh = pv.PolyData(np.zeros((2, 3)), lines=[2, 0, 1])
-        mapper = pv.DataSetMapper(self.dim_mesh)
-        self.dim_actor = pv.Actor(mapper=mapper)
-        self.dim_actor.prop.color = S.DIMENSION.color
-        self.dim_actor.prop.line_width = 2.0
-        self.dim_actor.prop.lighting = False
+        self.dim_mesh = mesh_type(plotter)(np.zeros((2, 3)), lines=[2, 0, 1])
+        self.dim_actor = mesh_actor(self.dim_mesh, S.DIMENSION.color, lighting=False, line_width=2.0)
         self.top.AddActor(self.dim_actor)
         self.label = vtkBillboardTextActor3D()
         self._text_style(self.label.GetTextProperty(), 15)

@@ -1,25 +1,20 @@
 """Off-screen pictures of one entity-frame: the 3-D view plus a caption band (no Qt).
 
-VTK renders through its off-screen context (EGL/Mesa here), so this runs without a display.
+VTK renders through its off-screen context (EGL/Mesa here), so this runs without a display; the
+render window is :class:`~resweep.app.scene.offscreen.OffscreenPlotter`'s (no pyvista).
 """
 from __future__ import annotations
 
-import os
-import sys
 from pathlib import Path
 
-if sys.platform.startswith("linux") and not os.environ.get("DISPLAY"):
-    # Go straight to the EGL window: trying X first without a display logs a warning on stderr.
-    os.environ.setdefault("VTK_DEFAULT_OPENGL_WINDOW", "vtkEGLRenderWindow")
+import numpy as np
+from PIL import Image
 
-import numpy as np  # noqa: E402
-import pyvista as pv  # noqa: E402
-from PIL import Image  # noqa: E402
+from resweep.core.format.atomic import write_atomic
 
-from resweep.core.format.atomic import write_atomic  # noqa: E402
-
-from resweep.app.scene.caption import BandLayout, band_layout, caption_lines, render_band  # noqa: E402
-from resweep.app.scene.viewport import Viewport, ViewOptions  # noqa: E402
+from resweep.app.scene.caption import BandLayout, band_layout, caption_lines, render_band
+from resweep.app.scene.offscreen import OffscreenPlotter  # first: it picks the EGL window without a display
+from resweep.app.scene.viewport import Viewport, ViewOptions
 
 MIN_VIEW_H = 8  # pixels of 3-D view kept however small the picture
 
@@ -39,18 +34,20 @@ class PictureMaker:
 
     The camera is pointed (``camera`` preset) for every picture; with ``reframe=False`` the
     direction of the first picture is kept for the later ones (an animation keeps one point of
-    view while each frame's story is still framed whole).
+    view while each frame's story is still framed whole). ``plotter_type(window_size=(W, H))``
+    makes the plotter (default :class:`OffscreenPlotter`; pyvista's off-screen ``Plotter`` draws
+    the same pixels, which the tests hold).
     """
 
     def __init__(self, session, size=(1280, 720), options=ViewOptions(), camera: str = "story",
-                 reframe: bool = True):
+                 reframe: bool = True, plotter_type=OffscreenPlotter):
         self.session = session
         self.size = tuple(int(v) for v in size)
         self.options = options
         self.camera = camera
         self.reframe = reframe
         W, H = self.size
-        self.plotter = pv.Plotter(off_screen=True, window_size=(W, max(MIN_VIEW_H, H // 2)))
+        self.plotter = plotter_type(window_size=(W, max(MIN_VIEW_H, H // 2)))
         self.vp = Viewport(self.plotter)
         self.vp.enable_inset()
         self.vp.set_session(session)
@@ -68,7 +65,7 @@ class PictureMaker:
         layout = band_layout(W, H, lines, vp.legend)
         view_h = max(MIN_VIEW_H, H - layout.height)
         if tuple(plotter.render_window.GetSize()) != (W, view_h):
-            plotter.render_window.SetSize(W, view_h)  # pyvista's window_size setter renders as well
+            plotter.render_window.SetSize(W, view_h)  # (pyvista's window_size setter would render as well)
         if not self.reframe and not self._pointed and vp.story is not None and vp.locked_dir is None:
             vp.locked_dir = np.asarray(vp.story.view_dir, np.float64)
         vp.set_camera(self.camera)

@@ -18,13 +18,13 @@ from resweep.app.scene.deferred_imports import defer_plot_modules
 
 defer_plot_modules()  # before pyvista's plotting module loads
 
-import pyvista as pv  # noqa: E402
 from vtkmodules.vtkRenderingCore import vtkRenderer  # noqa: E402
 
 from resweep.app.scene import style as S
 from resweep.app.scene.story import tell_story
 from resweep.app.scene.voxel_mesh import (Faces, ShapeTables, blocks_sight, box_quads, chunk_faces, concat, contact_quads,
-                         cone_quads, empty_faces, padded_types, select, shape_tables, swept_quads, to_polydata)
+                         cone_quads, empty_faces, mesh_type, padded_types, select, shape_tables, swept_quads,
+                         to_polydata)
 
 PRESETS = ("story", "follow", "motion", "top", "side")
 _ROLES = ("start", "recorded", "reference", "swept", "hit", "normal", "slide", "trail", "gap", "others",
@@ -83,7 +83,8 @@ class Viewport:
         self.session = None
         self.legend: list[tuple[str, tuple]] = []
         self.block_legend: list[tuple[str, tuple]] = []
-        self._meshes: dict[str, pv.PolyData] = {}
+        self._mesh_cls = mesh_type(plotter)  # pyvista's PolyData, or the off-screen plotter's own
+        self._meshes: dict = {}
         self._actors = {}
         self._preset = "story"
         self.story = None           # Story of the focused column (scene/story.py)
@@ -120,7 +121,7 @@ class Viewport:
     # -- actors ----------------------------------------------------------------------------------
     def _add_actors(self):
         p = self.plotter
-        vox = to_polydata(_one_face())
+        vox = to_polydata(_one_face(), self._mesh_cls)
         self._meshes["voxels"] = vox
         self._actors["voxels"] = p.add_mesh(vox, scalars="rgb", rgb=True, lighting=False, show_edges=True,
                                             edge_color=(0.22, 0.22, 0.24), line_width=0.5,
@@ -128,9 +129,9 @@ class Viewport:
         for role in _ROLES:
             st = _STYLE[role]
             if st.representation == "lines":
-                mesh = pv.PolyData(np.zeros((2, 3)), lines=[2, 0, 1])
+                mesh = self._mesh_cls(np.zeros((2, 3)), lines=[2, 0, 1])
             else:
-                mesh = pv.PolyData.from_regular_faces(box_quads(np.zeros(3), np.ones(3)).reshape(-1, 3),
+                mesh = self._mesh_cls.from_regular_faces(box_quads(np.zeros(3), np.ones(3)).reshape(-1, 3),
                                                       np.arange(24).reshape(6, 4))
             self._meshes[role] = mesh
             kw = dict(color=st.color, opacity=st.opacity, lighting=st.lit, reset_camera=False,
@@ -314,7 +315,7 @@ class Viewport:
             idx = np.flatnonzero(keep)
             keep[idx[blocked[inv.ravel()]]] = False
         shown = select(f, keep)
-        self._put("voxels", to_polydata(shown) if len(shown) else None)
+        self._put("voxels", to_polydata(shown, self._mesh_cls) if len(shown) else None)
         types = np.unique(shown.block)
         self.block_legend = [(w.shapes.name(int(t)), tuple(int(v) for v in self._rgb[t]))
                              for t in types if t < len(self._rgb)]

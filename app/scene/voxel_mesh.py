@@ -210,11 +210,24 @@ def select(faces: Faces, mask: np.ndarray) -> Faces:
     return Faces(faces.quads[mask], faces.rgb[mask], faces.centre[mask], faces.block[mask])
 
 
-def to_polydata(faces: Faces):
-    """pyvista.PolyData of the quads with cell array "rgb" (uint8 (n, 3))."""
+def mesh_type(plotter):
+    """The mesh class to draw on ``plotter``: its own ``mesh_type`` (the off-screen plotter's
+    meshes, which need no pyvista) or pyvista's ``PolyData`` (the viewer's Qt plotter)."""
+    own = getattr(plotter, "mesh_type", None)
+    if own is not None:
+        return own
     import pyvista as pv
+    return pv.PolyData
+
+
+def to_polydata(faces: Faces, mesh_cls=None):
+    """Mesh of the quads with cell array "rgb" (uint8 (n, 3)): a ``mesh_cls`` (default
+    pyvista.PolyData; see :func:`mesh_type`)."""
+    if mesh_cls is None:
+        import pyvista as pv
+        mesh_cls = pv.PolyData
     n = len(faces)
-    mesh = pv.PolyData.from_regular_faces(faces.quads.reshape(-1, 3), np.arange(4 * n).reshape(n, 4))
+    mesh = mesh_cls.from_regular_faces(faces.quads.reshape(-1, 3), np.arange(4 * n).reshape(n, 4))
     mesh.cell_data["rgb"] = faces.rgb
     return mesh
 

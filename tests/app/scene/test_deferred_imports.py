@@ -50,3 +50,18 @@ def test_an_already_imported_module_is_left_alone():
         "defer_plot_modules()\n"
         "print(sys.modules['matplotlib.pyplot'] is plt)\n")
     assert out == "True"
+
+
+def test_deferring_pyplot_does_not_import_matplotlib():
+    # The placeholder's spec is found from the package's folder, without running its __init__.
+    out = run_py(
+        "import sys, importlib.util\n"
+        "from resweep.app.scene.deferred_imports import defer_plot_modules\n"
+        "defer_plot_modules()\n"
+        "placeholder = sys.modules['matplotlib.pyplot']\n"
+        "print('matplotlib' in sys.modules, type(placeholder).__name__, placeholder.__spec__.name)\n"
+        "import matplotlib.pyplot as plt\n"
+        "plt.figure\n"
+        "real = importlib.util.find_spec('matplotlib.pyplot')\n"
+        "print(type(sys.modules['matplotlib.pyplot']).__name__, real.origin == placeholder.__spec__.origin)\n")
+    assert out.splitlines() == ["False _Deferred matplotlib.pyplot", "module True"]
