@@ -39,6 +39,7 @@ class EntitiesPanel(QWidget):
         self._ids: list[int] = []
         self._syncing = False
         self._shown = None
+        self._frame_rows = None  # (flags, active) of the frame shown by show_frame
         self.table = QTableWidget(0, 2 + len(KINDS), self)
         self.table.setObjectName("entities")
         for c, text in enumerate(["id", "name"] + [short(k) for k in KINDS]):
@@ -81,6 +82,7 @@ class EntitiesPanel(QWidget):
     def set_trace(self, ids, names, flags: TraceFlags):
         self.flags = flags
         self._shown = None  # counts on screen, int64 (N, kinds)
+        self._frame_rows = None
         self._ids = [int(i) for i in ids]
         self._syncing = True
         self.table.setRowCount(len(self._ids))
@@ -133,8 +135,19 @@ class EntitiesPanel(QWidget):
 
     def show_frame(self, flags, active):
         """Mark who diverges at the current frame (bold, in its worst severity) and who is inactive
-        (grey italics). flags int32 (N,), active bool (N,)."""
-        for r in range(min(self.table.rowCount(), len(flags))):
+        (grey italics). flags int32 (N,), active bool (N,). Only rows whose flags or activity
+        differ from the frame shown before are touched (a step changes a few rows of many)."""
+        n = min(self.table.rowCount(), len(flags))
+        flags = np.asarray(flags)[:n]
+        active = np.asarray(active, bool)[:n]
+        seen = self._frame_rows
+        if seen is None or len(seen[0]) != n:
+            rows = range(n)
+        else:
+            rows = np.flatnonzero((seen[0] != flags) | (seen[1] != active))
+        self._frame_rows = (flags.copy(), active.copy())
+        for r in rows:
+            r = int(r)
             it = self.table.item(r, self.NAME)
             kinds = kinds_of(flags[r]) if active[r] else []
             worst = worst_rank(flags[r]) if active[r] else 0
