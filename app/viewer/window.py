@@ -377,12 +377,14 @@ class MainWindow(QMainWindow):
         stop = lambda: self._frame_cancel or self.session is not session or self._refresh_again  # noqa: E731
         if not wait_for(self._frame_thread, stop):  # one solve at a time on a session
             return None
-        self.status(f"solving frame {frame} …")
-        self.cancel_button.setVisible(True)
+        def slow():  # only a frame that keeps the user waiting says so (no status churn per step)
+            self.status(f"solving frame {frame} …")
+            self.cancel_button.setVisible(True)
         try:
-            self._frame_thread, state = off_thread(lambda: session.frame_state(frame), stop)
+            self._frame_thread, state = off_thread(lambda: session.frame_state(frame), stop, on_slow=slow)
         finally:
-            self.cancel_button.setVisible(self.worker.is_busy())
+            if self.cancel_button.isHidden() == self.worker.is_busy():
+                self.cancel_button.setVisible(self.worker.is_busy())
         return state
 
     def _refresh_once(self):
