@@ -5,6 +5,7 @@ talk to each other or to the viewport directly.
 """
 from __future__ import annotations
 
+import functools
 import html
 
 import numpy as np
@@ -24,6 +25,17 @@ from resweep.app.viewer.report_md import INPUT_ROWS, FrameFacts, cells, num
 from resweep.app.viewer.flags import TraceFlags
 from resweep.app.viewer.timeline import SEVERITY_COLOURS
 
+
+
+_RIGHT = Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter
+_KIND_RANKS = [SEVERITY_RANK[SEVERITY[k]] for k in KINDS]
+_ZERO, _PLAIN = "#5d6a74", "#d9e2e8"  # a zero count; an id with no divergence
+
+
+@functools.cache
+def _brush(key) -> QBrush:
+    """One shared brush per severity rank (1..3) or colour name (made once, not per cell)."""
+    return QBrush(SEVERITY_COLOURS[key] if isinstance(key, int) else QColor(key))
 
 
 class EntitiesPanel(QWidget):
@@ -93,7 +105,9 @@ class EntitiesPanel(QWidget):
             self.table.setItem(r, self.ID, it)
             self.table.setItem(r, self.NAME, QTableWidgetItem(str(name)))
             for c in range(len(KINDS)):
-                self.table.setItem(r, 2 + c, QTableWidgetItem(""))
+                cell = QTableWidgetItem("")
+                cell.setTextAlignment(_RIGHT)
+                self.table.setItem(r, 2 + c, cell)
         self._syncing = False
         self.refresh_counts()
         self._sync_focus()
@@ -103,16 +117,22 @@ class EntitiesPanel(QWidget):
             self._refresh_timer.start()
 
     def refresh_counts(self):
-        """Show the counts so far; only rows whose counts moved since the last call are touched
-        (the counts themselves are kept up to date block by block by ``TraceFlags``)."""
+        """Show the counts so far; only the cells whose counts moved since the last call are
+        touched (the counts themselves are kept up to date block by block by ``TraceFlags``; while
+        a re-solve streams, most rows move between calls, so the work per cell is kept small)."""
         if self.flags is None:
             return
         table = self.flags.count_table()
         shown = self._shown
-        changed = range(len(self._ids)) if shown is None or shown.shape != table.shape else \
-            np.flatnonzero((table != shown).any(axis=1))
-        for r in changed:
-            self._show_counts(int(r), table[r])
+        if shown is None or shown.shape != table.shape:
+            rs, cs = np.nonzero(np.ones(table.shape, bool))
+        else:
+            rs, cs = np.nonzero(table != shown)
+        changed = np.unique(rs)
+        for r, c in zip(rs.tolist(), cs.tolist()):
+            self._show_count(r, c, int(table[r, c]))
+        for r in changed.tolist():
+            self._show_worst(r, table[r])
         self._shown = table.copy()
         done = self.flags.solved_count
         self.summary.setText(f"{len(self._ids)} entities · {self.flags.diverging_count} diverging entity-frames"
@@ -120,18 +140,15 @@ class EntitiesPanel(QWidget):
         if len(changed) or shown is None:
             self._apply_filter()
 
-    def _show_counts(self, r: int, counts):
-        worst = 0
-        for c, k in enumerate(KINDS):
-            n = int(counts[c])
-            it = self.table.item(r, 2 + c)
-            it.setText(str(n) if n else "·")
-            it.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-            rank = SEVERITY_RANK[SEVERITY[k]]
-            it.setForeground(QBrush(SEVERITY_COLOURS[rank] if n else QColor("#5d6a74")))
-            if n:
-                worst = max(worst, rank)
-        self.table.item(r, self.ID).setForeground(QBrush(SEVERITY_COLOURS[worst] if worst else QColor("#d9e2e8")))
+    def _show_count(self, r: int, c: int, n: int):
+        it = self.table.item(r, 2 + c)
+        it.setText(str(n) if n else "·")
+        it.setForeground(_brush(_KIND_RANKS[c] if n else _ZERO))
+
+    def _show_worst(self, r: int, counts):
+        """The id in the colour of the entity's worst severity so far."""
+        worst = max((_KIND_RANKS[c] for c in np.flatnonzero(counts).tolist()), default=0)
+        self.table.item(r, self.ID).setForeground(_brush(worst if worst else _PLAIN))
 
     def show_frame(self, flags, active):
         """Mark who diverges at the current frame (bold, in its worst severity) and who is inactive

@@ -81,3 +81,24 @@ def test_entities_panel_marks_follow_the_frame_when_only_changed_rows_are_restyl
             assert it.font().italic() == (not active[r]), (f, r)
             want = ", ".join(kinds) if kinds else "agrees" if active[r] else "inactive"
             assert it.toolTip() == "this frame: " + want, (f, r)
+
+
+def test_entities_panel_counts_and_colours_after_the_cell_by_cell_refresh(qtbot, demo_window):
+    from resweep.core.check.kinds import KINDS, SEVERITY, SEVERITY_RANK, kind_mask
+    from resweep.app.viewer.timeline import SEVERITY_COLOURS
+    win = demo_window
+    flags = core_flags(DEMO)
+    table = win.entities.table
+    for r in range(table.rowCount()):
+        worst = 0
+        for k, kind in enumerate(KINDS):
+            n = int(np.count_nonzero(flags[:, r] & kind_mask(kind)))
+            cell = table.item(r, 2 + k)
+            assert cell.text() == (str(n) if n else "·"), (r, kind)
+            rank = SEVERITY_RANK[SEVERITY[kind]]
+            want = SEVERITY_COLOURS[rank].name() if n else "#5d6a74"
+            assert cell.foreground().color().name() == want, (r, kind)
+            if n:
+                worst = max(worst, rank)
+        want_id = SEVERITY_COLOURS[worst].name() if worst else "#d9e2e8"
+        assert table.item(r, win.entities.ID).foreground().color().name() == want_id, r
