@@ -5,6 +5,7 @@ talk to each other or to the viewport directly.
 """
 from __future__ import annotations
 
+import functools
 import html
 
 import numpy as np
@@ -26,6 +27,17 @@ from resweep.app.viewer.timeline import SEVERITY_COLOURS
 
 
 
+_RIGHT = Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter
+_KIND_RANKS = [SEVERITY_RANK[SEVERITY[k]] for k in KINDS]
+_ZERO, _PLAIN = "#5d6a74", "#d9e2e8"  # a zero count; an id with no divergence
+
+
+@functools.cache
+def _brush(key) -> QBrush:
+    """One shared brush per severity rank (1..3) or colour name (made once, not per cell)."""
+    return QBrush(SEVERITY_COLOURS[key] if isinstance(key, int) else QColor(key))
+
+
 class EntitiesPanel(QWidget):
     """Table of entities with divergence counts per kind; the current row is the focused entity,
     the selected rows are the entities the timeline strip summarises."""
@@ -39,6 +51,7 @@ class EntitiesPanel(QWidget):
         self._ids: list[int] = []
         self._syncing = False
         self._shown = None
+        self._frame_rows = None  # (flags, active) of the frame shown by show_frame
         self.table = QTableWidget(0, 2 + len(KINDS), self)
         self.table.setObjectName("entities")
         for c, text in enumerate(["id", "name"] + [short(k) for k in KINDS]):
@@ -81,6 +94,7 @@ class EntitiesPanel(QWidget):
     def set_trace(self, ids, names, flags: TraceFlags):
         self.flags = flags
         self._shown = None  # counts on screen, int64 (N, kinds)
+        self._frame_rows = None
         self._ids = [int(i) for i in ids]
         self._syncing = True
         self.table.setRowCount(len(self._ids))
@@ -91,7 +105,9 @@ class EntitiesPanel(QWidget):
             self.table.setItem(r, self.ID, it)
             self.table.setItem(r, self.NAME, QTableWidgetItem(str(name)))
             for c in range(len(KINDS)):
-                self.table.setItem(r, 2 + c, QTableWidgetItem(""))
+                cell = QTableWidgetItem("")
+                cell.setTextAlignment(_RIGHT)
+                self.table.setItem(r, 2 + c, cell)
         self._syncing = False
         self.refresh_counts()
         self._sync_focus()
@@ -101,16 +117,22 @@ class EntitiesPanel(QWidget):
             self._refresh_timer.start()
 
     def refresh_counts(self):
-        """Show the counts so far; only rows whose counts moved since the last call are touched
-        (the counts themselves are kept up to date block by block by ``TraceFlags``)."""
+        """Show the counts so far; only the cells whose counts moved since the last call are
+        touched (the counts themselves are kept up to date block by block by ``TraceFlags``; while
+        a re-solve streams, most rows move between calls, so the work per cell is kept small)."""
         if self.flags is None:
             return
         table = self.flags.count_table()
         shown = self._shown
-        changed = range(len(self._ids)) if shown is None or shown.shape != table.shape else \
-            np.flatnonzero((table != shown).any(axis=1))
-        for r in changed:
-            self._show_counts(int(r), table[r])
+        if shown is None or shown.shape != table.shape:
+            rs, cs = np.nonzero(np.ones(table.shape, bool))
+        else:
+            rs, cs = np.nonzero(table != shown)
+        changed = np.unique(rs)
+        for r, c in zip(rs.tolist(), cs.tolist()):
+            self._show_count(r, c, int(table[r, c]))
+        for r in changed.tolist():
+            self._show_worst(r, table[r])
         self._shown = table.copy()
         done = self.flags.solved_count
         self.summary.setText(f"{len(self._ids)} entities · {self.flags.diverging_count} diverging entity-frames"
@@ -118,23 +140,31 @@ class EntitiesPanel(QWidget):
         if len(changed) or shown is None:
             self._apply_filter()
 
-    def _show_counts(self, r: int, counts):
-        worst = 0
-        for c, k in enumerate(KINDS):
-            n = int(counts[c])
-            it = self.table.item(r, 2 + c)
-            it.setText(str(n) if n else "·")
-            it.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-            rank = SEVERITY_RANK[SEVERITY[k]]
-            it.setForeground(QBrush(SEVERITY_COLOURS[rank] if n else QColor("#5d6a74")))
-            if n:
-                worst = max(worst, rank)
-        self.table.item(r, self.ID).setForeground(QBrush(SEVERITY_COLOURS[worst] if worst else QColor("#d9e2e8")))
+    def _show_count(self, r: int, c: int, n: int):
+        it = self.table.item(r, 2 + c)
+        it.setText(str(n) if n else "·")
+        it.setForeground(_brush(_KIND_RANKS[c] if n else _ZERO))
+
+    def _show_worst(self, r: int, counts):
+        """The id in the colour of the entity's worst severity so far."""
+        worst = max((_KIND_RANKS[c] for c in np.flatnonzero(counts).tolist()), default=0)
+        self.table.item(r, self.ID).setForeground(_brush(worst if worst else _PLAIN))
 
     def show_frame(self, flags, active):
         """Mark who diverges at the current frame (bold, in its worst severity) and who is inactive
-        (grey italics). flags int32 (N,), active bool (N,)."""
-        for r in range(min(self.table.rowCount(), len(flags))):
+        (grey italics). flags int32 (N,), active bool (N,). Only rows whose flags or activity
+        differ from the frame shown before are touched (a step changes a few rows of many)."""
+        n = min(self.table.rowCount(), len(flags))
+        flags = np.asarray(flags)[:n]
+        active = np.asarray(active, bool)[:n]
+        seen = self._frame_rows
+        if seen is None or len(seen[0]) != n:
+            rows = range(n)
+        else:
+            rows = np.flatnonzero((seen[0] != flags) | (seen[1] != active))
+        self._frame_rows = (flags.copy(), active.copy())
+        for r in rows:
+            r = int(r)
             it = self.table.item(r, self.NAME)
             kinds = kinds_of(flags[r]) if active[r] else []
             worst = worst_rank(flags[r]) if active[r] else 0

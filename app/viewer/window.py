@@ -27,6 +27,7 @@ from resweep.app.viewer.flags import TraceFlags
 from resweep.app.viewer.resolve import ResolveFeed
 from resweep.app.viewer.hunt import HuntTools
 from resweep.app.viewer.follow import RecordingFollower
+from resweep.app.viewer.view_paint import ViewPaint
 from resweep.app.viewer.timeline import ACCENT, GROOVE, INK, PANEL, Timeline, draw_icon
 from resweep.app.viewer.worker import TraceWorker, error_line, off_thread, wait_for
 from resweep.sample_traces import demo_path
@@ -62,9 +63,11 @@ class MainWindow(QMainWindow):
         self._camera = "story"
         self._refreshing = False  # a frame is being solved off the GUI thread (see refresh_view)
         self._refresh_again = False
+        self._frame_moved = False  # the refresh to come shows another frame (drawn as a draft)
         self._frame_cancel = False
         self._frame_thread = None
         self.plotter = None
+        self.view_paint = None  # paint scheduling of the 3-D view (drafts while scrubbing)
         self.viewport = None
         self.view_options = None
         self._build_centre(with_viewport)
@@ -100,7 +103,13 @@ class MainWindow(QMainWindow):
             # No render timer: an idle software-GL view re-rendered 5 times a second burns a core
             # the background re-solve needs; the window asks for a paint when the scene changes.
             self.plotter = QtInteractor(centre, auto_update=False)
+            # A window of its own for the 3-D view: with a GL widget inside it, Qt would compose the
+            # whole main window through (software) GL on every paint of any widget, a strip or
+            # panel repaint costing a full-window composition; native, the rest paints as plain
+            # raster and only the view's own area goes through GL.
+            self.plotter.setAttribute(Qt.WidgetAttribute.WA_NativeWindow)
             self.plotter.setFocusPolicy(Qt.FocusPolicy.ClickFocus)
+            self.view_paint = ViewPaint(self.plotter, parent=self)
             # VTK's own letter keys (q/e quit, 3 stereo, s/w surface style...) would fight the
             # window's shortcuts; the window's actions still see every key first.
             self._key_guard = _SwallowKeys(self.plotter)
@@ -333,6 +342,7 @@ class MainWindow(QMainWindow):
             self.store.setValue("solver", pb.settings.as_dict())
             self._start_solve()
         if event in ("frame", "focus", "settings", "trace"):
+            self._frame_moved = self._frame_moved or event == "frame"
             self.refresh_view()
         if event == "focus" and self.viewport is not None:
             self.set_camera(self._camera)
@@ -367,12 +377,14 @@ class MainWindow(QMainWindow):
         stop = lambda: self._frame_cancel or self.session is not session or self._refresh_again  # noqa: E731
         if not wait_for(self._frame_thread, stop):  # one solve at a time on a session
             return None
-        self.status(f"solving frame {frame} …")
-        self.cancel_button.setVisible(True)
+        def slow():  # only a frame that keeps the user waiting says so (no status churn per step)
+            self.status(f"solving frame {frame} …")
+            self.cancel_button.setVisible(True)
         try:
-            self._frame_thread, state = off_thread(lambda: session.frame_state(frame), stop)
+            self._frame_thread, state = off_thread(lambda: session.frame_state(frame), stop, on_slow=slow)
         finally:
-            self.cancel_button.setVisible(self.worker.is_busy())
+            if self.cancel_button.isHidden() == self.worker.is_busy():
+                self.cancel_button.setVisible(self.worker.is_busy())
         return state
 
     def _refresh_once(self):
@@ -384,7 +396,8 @@ class MainWindow(QMainWindow):
             self.state = state
             if self.viewport is not None and col is not None:
                 self.viewport.show(self.state, col, self.view_options)
-                self._redraw()
+                self._redraw(draft=self._frame_moved)
+            self._frame_moved = False
             facts = frame_facts(self.session, self.state, col) if col is not None else None
         except Exception as exc:  # the GUI boundary: one line in the panel, the window stays usable
             self.frame_panel.show_facts(None, f"frame {self.pb.frame} cannot be shown: {error_line(exc)}")
@@ -404,11 +417,12 @@ class MainWindow(QMainWindow):
         self.view_options.show_trail = self.act_trail.isChecked()
         self.refresh_view()
 
-    def _redraw(self):
+    def _redraw(self, draft: bool = False):
         """Ask for one paint of the 3-D view (it renders there); paints asked for before it
-        happens merge into one."""
-        if self.plotter is not None:
-            self.plotter.update()
+        happens merge into one. ``draft``: a change of frame, drawn as a draft until the frames
+        stop changing (view_paint.py)."""
+        if self.view_paint is not None:
+            self.view_paint.request(draft)
 
     def set_camera(self, preset: str):
         self._camera = preset
@@ -443,6 +457,7 @@ class MainWindow(QMainWindow):
         from resweep.app.scene.caption import caption_lines
         from resweep.app.scene.picture import compose
         if self.plotter is not None:
+            self.view_paint.full()  # a picture is always the full-quality one
             self.plotter.render()  # the scene as it is now, even if its paint is still queued
             view = np.ascontiguousarray(self.plotter.screenshot(return_img=True)[..., :3])
         else:
@@ -577,6 +592,7 @@ class MainWindow(QMainWindow):
             self.session.close()
             self.session = None
         if self.plotter is not None:
+            self.view_paint.full()  # no full-quality paint pending on a closed view
             self.plotter.close()
         super().closeEvent(event)
 

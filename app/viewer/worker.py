@@ -26,10 +26,14 @@ def error_line(exc: BaseException) -> str:
     return f"{type(exc).__name__}: {printable(exc)}"
 
 
-def off_thread(fn, cancelled, poll_ms: int = 15):
+def off_thread(fn, cancelled, poll_ms: int = 15, quick_s: float = 0.03, on_slow=None):
     """Run ``fn()`` on a worker thread while the Qt event loop keeps running (the window stays
     responsive); returns ``(thread, value)``, or ``(thread, None)`` as soon as ``cancelled()``
     is true (the thread then finishes on its own; its result is dropped). Re-raises ``fn``'s error.
+
+    A result within ``quick_s`` seconds (most single frames) is taken without running the event
+    loop: running it there would paint the previous, already superseded frame first. ``on_slow()``
+    is called once when it takes longer (e.g. to show a Cancel button).
     """
     box = {}
 
@@ -40,6 +44,9 @@ def off_thread(fn, cancelled, poll_ms: int = 15):
             box["error"] = exc
     t = threading.Thread(target=run, daemon=True, name="resweep-frame")
     t.start()
+    t.join(quick_s)
+    if t.is_alive() and on_slow is not None:
+        on_slow()
     while t.is_alive():
         if cancelled():
             return t, None
