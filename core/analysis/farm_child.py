@@ -9,9 +9,11 @@ checks with the reader's checks, as the validator does.
 
 Protocol (one line each way, see ``vet_child.serve``): the request is
 ``{"job": base64(pickle((path, frames, FarmOptions)))}``; the answer is
-``{"ok": true, "part": base64(pickle(PartResult))}`` (a trace the reader refuses is a PartResult
-with its ``error``), or ``{"ok": false, "reason": ...}`` for a failure of our own; while a big job
-runs, interim ``{"progress": entity_frames}`` lines, at most one per :data:`PROGRESS_SECONDS`.
+``{"ok": true, "part": base64(pickle(PartResult)), "rows", "error", "checked"}`` (a trace the
+reader refuses is a PartResult with its ``error``; the other fields let the worker count it without
+unpickling it), or ``{"ok": false, "reason": ...}`` for a failure of our own; while a big job
+runs, interim ``{"progress": entity_frames}`` lines: after a job's first frame block, then at most
+one per :data:`PROGRESS_SECONDS`.
 Pickles pass only between this process and its own child, which runs our code with the same
 rights as the worker.
 """
@@ -33,9 +35,11 @@ def request(path: str, frames, options) -> str:
     return '{"job": "%s"}' % base64.b64encode(pickle.dumps((path, frames, options), protocol=5)).decode()
 
 
-def part_of(doc: dict):
-    """The PartResult of an ``ok`` answer."""
-    return pickle.loads(base64.b64decode(doc["part"]))
+def part_of(doc: dict, path: str, frames):
+    """The result of an ``ok`` answer, still pickled (a :class:`farm_task.PackedPart`)."""
+    from resweep.core.analysis.farm_task import PackedPart
+    return PackedPart(path, frames, base64.b64decode(doc["part"]), bool(doc.get("error")),
+                      bool(doc.get("checked")), int(doc.get("rows", 0)))
 
 
 class _Checker:
@@ -47,11 +51,11 @@ class _Checker:
         import json
         from resweep.core.analysis.farm_task import check_part
         path, frames, options = pickle.loads(base64.b64decode(json.loads(line)["job"]))
-        last = [time.monotonic()]
+        last = [None]
 
-        def progress(rows):
+        def progress(rows):  # the job's first block, then at most one a PROGRESS_SECONDS
             now = time.monotonic()
-            if now - last[0] >= PROGRESS_SECONDS:
+            if last[0] is None or now - last[0] >= PROGRESS_SECONDS:
                 last[0] = now
                 say({"progress": int(rows)})
 
@@ -62,7 +66,9 @@ class _Checker:
         except Exception as exc:  # a bug of ours: the worker reports it against this trace
             text = " ".join(str(exc).split())
             return {"ok": False, "reason": f"internal error: {type(exc).__name__}: {text}"[:400]}
-        return {"ok": True, "part": base64.b64encode(pickle.dumps(part, protocol=5)).decode()}
+        return {"ok": True, "part": base64.b64encode(pickle.dumps(part, protocol=5)).decode(),
+                "rows": part.report.entity_frames if part.report is not None else 0,
+                "error": part.error is not None, "checked": part.report is not None}
 
 
 def main(argv=None) -> int:

@@ -20,7 +20,7 @@ import time
 import uuid
 from concurrent.futures import CancelledError, ThreadPoolExecutor
 
-from resweep.core.analysis.farm_task import check_batch
+from resweep.core.analysis.farm_task import check_batch, unpack
 from resweep.core.errors import ClusterError
 
 
@@ -123,7 +123,7 @@ class ThreadEngine:
 
     def outcome(self, fut):
         try:
-            return fut.result(), None
+            return [unpack(p) for p in fut.result()], None
         except CancelledError:
             return None, None
         except Exception as exc:  # a bug while checking this trace: the batch goes on
@@ -183,7 +183,7 @@ class DaskEngine:
         if fut.status == "cancelled":
             return None, None
         try:
-            return fut.result(), None
+            return [unpack(p) for p in fut.result()], None
         except CancelledError:
             return None, None
         except Exception as exc:  # KilledWorker after repeated worker deaths, or a bug in the task
