@@ -18,9 +18,10 @@ and the limit or signal. Results are cached by path, size, modification time, li
 version of the validator in a small JSON file in the user cache folder (written atomically), so
 re-opening the same file does not pay twice.
 
-:func:`vet_many` validates a batch in one child, file after file (a farm worker keeps that child
+:func:`vet_many` validates a batch in one child, file after file (a caller may keep that child
 for its next batch): starting Python with numpy and h5py costs about 0.3 s, several times the
-validation of a small trace.
+validation of a small trace. :class:`IsolatedChild` is the parent's side of any such child; a farm
+worker keeps one that also checks each trace (``analysis.farm_child``).
 """
 from __future__ import annotations
 
@@ -90,7 +91,7 @@ def vet_many(paths, use_cache: bool = True, keep: bool = False) -> dict:
     One child validates the files one after the other, each with its own CPU-time and wall-time
     limits; a file that kills or hangs the child is refused with the reason, and the files after
     it go on in a new child. ``keep`` leaves the child running for the next call of this process
-    (a farm worker validates batch after batch without starting a child per batch). Returns ``{str(path): None or TraceFormatError}`` (the error's
+    (a caller validates batch after batch without starting a child per batch). Returns ``{str(path): None or TraceFormatError}`` (the error's
     :meth:`~TraceFormatError.one_line` names the file). With ``RESWEEP_ISOLATE=0`` every file is
     accepted unchecked.
     """
@@ -131,7 +132,7 @@ def _error(path: str, v: Verdict):
 def _run_children(paths: list, keep: bool = False) -> dict:
     """Verdicts of ``paths``, asked one by one of a child; a child that dies or hangs on a path is
     replaced for the next. ``keep``: leave the last child running for this process's next call
-    (farm workers; its stdin closing when this process ends makes it exit)."""
+    (its stdin closing when this process ends makes it exit)."""
     global _kept
     out = {}
     with _kept_lock:
