@@ -20,7 +20,7 @@ import time
 import uuid
 from concurrent.futures import CancelledError, ThreadPoolExecutor
 
-from resweep.core.analysis.farm_task import check_batch
+from resweep.core.analysis.farm_task import check_batch, unpack
 from resweep.core.errors import ClusterError
 
 
@@ -83,6 +83,24 @@ class _EventReport:
             pass
 
 
+class _TaskStop:
+    """``should_stop`` of a task on a Dask worker (picklable): True once the scheduler cancelled
+    the task (``Client.cancel``) or its worker is closing. The running job's isolated child is then
+    killed at once (``farm_task``), so Ctrl-C and the cluster's close do not wait for the job to
+    end, nor the nanny for its timeout."""
+
+    def __call__(self) -> bool:
+        from distributed import get_worker
+        try:
+            worker = get_worker()
+        except ValueError:  # not on a worker (never in a farm)
+            return False
+        if worker.status.name in ("closing", "closed", "failed", "stopping", "stopped"):
+            return True
+        ts = worker.state.tasks.get(worker.get_current_task())
+        return ts is None or ts.state in ("cancelled", "released", "forgotten")
+
+
 def _reason(exc: BaseException) -> str:
     text = " ".join(str(exc).split())
     return f"{type(exc).__name__}: {text}"[:400]
@@ -105,7 +123,7 @@ class ThreadEngine:
 
     def outcome(self, fut):
         try:
-            return fut.result(), None
+            return [unpack(p) for p in fut.result()], None
         except CancelledError:
             return None, None
         except Exception as exc:  # a bug while checking this trace: the batch goes on
@@ -158,13 +176,14 @@ class DaskEngine:
         self.tallies.hear(task, traces, rows)
 
     def submit(self, jobs, options, task=None):
-        return self.client.submit(check_batch, jobs, options, None, _EventReport(self._topic, task), pure=False)
+        return self.client.submit(check_batch, jobs, options, _TaskStop(), _EventReport(self._topic, task),
+                                  pure=False)
 
     def outcome(self, fut):
         if fut.status == "cancelled":
             return None, None
         try:
-            return fut.result(), None
+            return [unpack(p) for p in fut.result()], None
         except CancelledError:
             return None, None
         except Exception as exc:  # KilledWorker after repeated worker deaths, or a bug in the task

@@ -11,6 +11,7 @@ results stays light.
 """
 from __future__ import annotations
 
+import atexit
 import os
 import sys
 import threading
@@ -59,6 +60,41 @@ class PartResult:
     error: str | None = None
     plan: list = field(default=None)
     seconds: float = 0.0
+
+
+@dataclass
+class PackedPart:
+    """A :class:`PartResult` as the isolated child pickled it. The worker passes the bytes on
+    without opening them, so it never imports the check (and numba with it); the engine that
+    hands results to the farm unpacks them (:func:`unpack`).
+
+    Attributes:
+        path, frames: the job. blob: the pickled PartResult. error: it carries a reason.
+        checked: it carries a report. rows: the report's entity-frames (0 without one).
+    """
+
+    path: str
+    frames: tuple[int, int] | None
+    blob: bytes
+    error: bool
+    checked: bool
+    rows: int
+
+
+def unpack(part):
+    """The PartResult of ``part`` (a PartResult, or a PackedPart from a worker's child)."""
+    if isinstance(part, PackedPart):
+        import pickle
+        return pickle.loads(part.blob)
+    return part
+
+
+def _tally(part, whole: bool) -> tuple[int, int]:
+    """(traces finished, entity-frames checked) by one result of a job (``whole``: not a range)."""
+    if isinstance(part, PackedPart):
+        return int(part.error or part.checked and whole), part.rows
+    return (int(part.error is not None or part.report is not None and whole),
+            part.report.entity_frames if part.report is not None else 0)
 
 
 _warmed: set = set()
@@ -111,22 +147,30 @@ def _worlds():
     return cache
 
 
-def check_batch(jobs, options: FarmOptions, should_stop=None, report=None) -> list[PartResult]:
+def forget_worlds() -> None:
+    """Drop this thread's world cache (after a MemoryError)."""
+    _local.worlds = None
+
+
+def check_batch(jobs, options: FarmOptions, should_stop=None, report=None) -> list:
     """:func:`check_part` for each ``(path, frames)`` of ``jobs`` in turn (one task for many small
     traces); stops early, leaving the rest out of the result, when ``should_stop()`` is True.
 
-    Whole traces are first validated by the isolated validator (``format.vet.vet_many``: a
-    limited child process that this worker keeps for batch after batch, so a hostile file cannot
-    hang or crash the worker and no batch pays for starting a child);
-    a refused trace comes back with its one-line reason. Ranges of a split trace are not vetted
-    again: the task that planned them vetted the file.
+    Every job runs in the isolated child this worker keeps for batch after batch
+    (``farm_child``: the validator's limited process with the kernels loaded), so a hostile file
+    cannot hang or crash the worker, no batch pays for starting a child, and each file is opened
+    once; a job the child dies or hangs on comes back with the one-line reason and the next job
+    gets a new child. With ``RESWEEP_ISOLATE=0`` jobs run in this process.
 
     ``report(traces, entity_frames)``, when given, hears what this task has done so far (traces
     finished, entity-frames checked or being checked) as it goes; it may drop calls (throttling).
+    Returns PartResults, or PackedParts from the child (:func:`unpack` turns either into a
+    PartResult).
     """
-    from resweep.core.format.vet import vet_many
-    configure(options)
-    refused = vet_many([path for path, frames in jobs if frames is None], keep=True)
+    from resweep.core.format.vet import ISOLATE_ENV
+    isolated = os.environ.get(ISOLATE_ENV, "1") != "0"
+    if not isolated:
+        configure(options)
     out = []
     done = [0, 0]  # traces finished, entity-frames of finished parts
 
@@ -136,17 +180,79 @@ def check_batch(jobs, options: FarmOptions, should_stop=None, report=None) -> li
     for path, frames in jobs:
         if should_stop is not None and should_stop():
             break
-        why = refused.get(str(path)) if frames is None else None
-        if why is not None:
-            part = PartResult(path, None, error=why.one_line())
+        if isolated:
+            part = _in_child(path, frames, options, should_stop, running if report is not None else None)
+            if part is None:  # stopped while the child worked on it
+                break
         else:
             part = check_part(path, options, frames, should_stop, running if report is not None else None)
         out.append(part)
-        done[0] += part.error is not None or part.report is not None and frames is None
-        done[1] += part.report.entity_frames if part.report is not None else 0
+        traces, rows = _tally(part, frames is None)
+        done[0] += traces
+        done[1] += rows
         if report is not None:
             report(done[0], done[1])
     return out
+
+
+_child = None
+_child_lock = threading.Lock()
+_closer: list = []
+
+
+def _close_child() -> None:
+    """At exit: end the kept child and reap it (it would end by itself when its input closes, but
+    unreaped its CPU time is counted nowhere)."""
+    global _child
+    if _child is not None and _child_lock.acquire(timeout=1):
+        try:
+            if _child is not None:
+                _child.close()
+                _child = None
+        finally:
+            _child_lock.release()
+
+
+def _child_setup(options: FarmOptions):
+    """(environment, extra address space) of the farm child for ``options``."""
+    from resweep.core.analysis.farm_child import KERNEL_ADDRESS_SPACE
+    env = {}
+    if options.cache_dir:
+        env[CACHE_ENV] = options.cache_dir
+    if options.threads is not None:
+        env["NUMBA_NUM_THREADS"] = str(max(1, int(options.threads)))
+    return env, KERNEL_ADDRESS_SPACE
+
+
+def _in_child(path, frames, options: FarmOptions, should_stop, progress):
+    """One job in this process's kept farm child (started, or replaced, as needed); None when
+    ``should_stop()`` became True while it ran (the child is then killed)."""
+    global _child
+    from resweep.core.analysis import farm_child
+    from resweep.core.errors import TraceFormatError
+    from resweep.core.format.vet import IsolatedChild, Verdict, _answer
+    env, extra = _child_setup(options)
+    t0 = time.perf_counter()
+    heard = None if progress is None else (lambda doc: progress(int(doc["progress"])))
+    with _child_lock:
+        if _child is not None and not _child.fits(farm_child.__name__, env, extra):
+            _child.close()
+            _child = None
+        if _child is None:
+            if not _closer:
+                _closer.append(atexit.register(_close_child))
+            _child = IsolatedChild(farm_child.__name__, env, extra)
+        got = _child.exchange(farm_child.request(path, frames, options), heard, should_stop)
+        mem = _child.mem
+        if not _child.alive:
+            _child = None
+    if got is None:
+        return None
+    if isinstance(got, dict) and got.get("ok"):
+        return farm_child.part_of(got, path, frames)
+    why = got if isinstance(got, Verdict) else _answer(got, mem)
+    return PartResult(path, frames, error=TraceFormatError(path, why.dataset, why.reason).one_line(),
+                      seconds=time.perf_counter() - t0)
 
 
 def _plan(trace, options: FarmOptions):

@@ -158,7 +158,7 @@ class SafeFile:
         for i, part in enumerate(parts[first:], first):
             walked += "/" + part
             try:
-                link = node.get(part, getlink=True)
+                link = _link(node, part)
             except H5_FAILURES as exc:
                 raise self.fail(walked, f"cannot read link: {exc}") from None
             if link is None:
@@ -174,7 +174,7 @@ class SafeFile:
                     raise self.fail(walked, f"is a soft link to {link.path}, which does not exist in the file")
                 return resolved
             try:
-                node = node[part]
+                node = _open_hard(node, part)
             except H5_FAILURES as exc:
                 raise self.fail(walked, f"cannot open object (truncated or corrupt?): {exc}") from None
         if isinstance(node, h5py.Group):
@@ -264,6 +264,11 @@ class SafeFile:
         raw (still compressed) bytes of every chunk, read without decoding them. Two datasets
         with the same digest decode to the same array, so a decoded copy can be reused (a farm's
         world cache). None for an unchunked dataset (nothing to save: it is stored uncompressed).
+
+        The chunks' places come from HDF5's chunk index; their bytes are read from the file in
+        one ``pread`` when they lie close together (a chunk-by-chunk read through HDF5 costs
+        more than the rest of a small trace's open). A chunk that reaches past the end of the
+        file is refused, as HDF5's own read would.
         """
         import hashlib
         h = hashlib.blake2b(digest_size=20)
@@ -274,15 +279,36 @@ class SafeFile:
             if ds.chunks is None:
                 return None
             spots = []
-            ds.id.chunk_iter(lambda info: spots.append(info.chunk_offset))
-            for spot in spots:
-                mask, data = ds.id.read_direct_chunk(spot)
-                h.update(repr((spot, mask, len(data))).encode())
-                h.update(data)
+            ds.id.chunk_iter(spots.append)
         except TraceFormatError:
             raise
         except H5_FAILURES as exc:
             raise self.fail(ds.name, f"cannot read stored chunks (truncated or corrupt?): {exc}") from None
+        if not spots:
+            return h.digest()
+        try:
+            fd = os.open(self.path, os.O_RDONLY)
+            try:
+                size = os.fstat(fd).st_size
+                if any(c.byte_offset is None or c.byte_offset < 0 or c.byte_offset + c.size > size for c in spots):
+                    raise self.fail(ds.name, "cannot read stored chunks (truncated or corrupt?): a chunk lies past "
+                                             "the end of the file")
+                lo = min(c.byte_offset for c in spots)
+                hi = max(c.byte_offset + c.size for c in spots)
+                total = sum(c.size for c in spots)
+                whole = os.pread(fd, hi - lo, lo) if hi - lo <= 2 * total + (64 << 10) else None
+                for c in spots:
+                    data = (memoryview(whole)[c.byte_offset - lo:c.byte_offset - lo + c.size] if whole is not None
+                            else os.pread(fd, c.size, c.byte_offset))
+                    if len(data) != c.size:
+                        raise self.fail(ds.name, "cannot read stored chunks: the file is shorter than its chunk "
+                                                 "index says (truncated?)")
+                    h.update(repr((c.chunk_offset, c.filter_mask, c.size)).encode())
+                    h.update(data)
+            finally:
+                os.close(fd)
+        except OSError as exc:
+            raise self.fail(ds.name, f"cannot read stored chunks: {exc.strerror or exc}") from None
         return h.digest()
 
     def read_strings(self, ds) -> tuple[str, ...]:
@@ -304,3 +330,43 @@ class SafeFile:
             return obj.attrs[key]
         except H5_FAILURES as exc:
             raise self.fail(f"{obj.name}@{key}", f"cannot read attribute: {exc}") from None
+
+
+# h5py's Group.get(name, getlink=True) and Group[name] for the hard links of a read-only file,
+# without the high-level layer's per-call costs (a File object made per lookup to learn the
+# mode; a trace's open does a few dozen lookups, a farm thousands of opens). Same low-level calls,
+# same results; soft and external links go through h5py's own objects.
+_HARD = h5py.h5l.TYPE_HARD
+
+
+def _name(part: str) -> bytes:
+    try:
+        return part.encode("ascii")
+    except UnicodeEncodeError:
+        return part.encode("utf8")
+
+
+def _link(group, part: str):
+    """``group.get(part, getlink=True)``: None when absent (or dangling), else the link."""
+    b = _name(part)
+    if not h5py.h5g._path_valid(group.id, b, None):
+        return None
+    if group.id.links.get_info(b).type == _HARD:
+        return _HARD_LINK
+    return group.get(part, getlink=True)
+
+
+def _open_hard(group, part: str):
+    """``group[part]`` of a file opened read-only."""
+    oid = h5py.h5o.open(group.id, _name(part))
+    kind = h5py.h5i.get_type(oid)
+    if kind == h5py.h5i.GROUP:
+        return h5py.Group(oid)
+    if kind == h5py.h5i.DATASET:
+        return h5py.Dataset(oid, readonly=True)
+    if kind == h5py.h5i.DATATYPE:
+        return h5py.Datatype(oid)
+    raise TypeError("Unknown object type")
+
+
+_HARD_LINK = h5py.HardLink()

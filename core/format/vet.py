@@ -18,9 +18,10 @@ and the limit or signal. Results are cached by path, size, modification time, li
 version of the validator in a small JSON file in the user cache folder (written atomically), so
 re-opening the same file does not pay twice.
 
-:func:`vet_many` validates a batch in one child, file after file (a farm worker keeps that child
+:func:`vet_many` validates a batch in one child, file after file (a caller may keep that child
 for its next batch): starting Python with numpy and h5py costs about 0.3 s, several times the
-validation of a small trace.
+validation of a small trace. :class:`IsolatedChild` is the parent's side of any such child; a farm
+worker keeps one that also checks each trace (``analysis.farm_child``).
 """
 from __future__ import annotations
 
@@ -90,7 +91,7 @@ def vet_many(paths, use_cache: bool = True, keep: bool = False) -> dict:
     One child validates the files one after the other, each with its own CPU-time and wall-time
     limits; a file that kills or hangs the child is refused with the reason, and the files after
     it go on in a new child. ``keep`` leaves the child running for the next call of this process
-    (a farm worker validates batch after batch without starting a child per batch). Returns ``{str(path): None or TraceFormatError}`` (the error's
+    (a caller validates batch after batch without starting a child per batch). Returns ``{str(path): None or TraceFormatError}`` (the error's
     :meth:`~TraceFormatError.one_line` names the file). With ``RESWEEP_ISOLATE=0`` every file is
     accepted unchecked.
     """
@@ -131,11 +132,13 @@ def _error(path: str, v: Verdict):
 def _run_children(paths: list, keep: bool = False) -> dict:
     """Verdicts of ``paths``, asked one by one of a child; a child that dies or hangs on a path is
     replaced for the next. ``keep``: leave the last child running for this process's next call
-    (farm workers; its stdin closing when this process ends makes it exit)."""
+    (its stdin closing when this process ends makes it exit)."""
     global _kept
     out = {}
     with _kept_lock:
         child = _kept if keep and _kept is not None and _kept.fits() else None
+        if _kept is not None and child is None:
+            _kept.close()
         _kept = None
         try:
             for path in paths:
@@ -153,28 +156,33 @@ def _run_children(paths: list, keep: bool = False) -> dict:
     return out
 
 
-class _Child:
-    """One validator child (``vet_child``) that answers path after path on its stdin/stdout."""
+class IsolatedChild:
+    """One isolated child that answers request after request on its stdin/stdout: the validator
+    (``vet_child``, a path a line), or another ``module`` whose ``main`` serves with
+    ``vet_child.serve`` (a farm's checking child). ``env`` adds to the child's environment;
+    ``extra_mem`` adds to its address-space limit (bytes; a child that loads compiled kernels)."""
 
-    def __init__(self):
-        env = {k: v for k, v in os.environ.items() if k not in _DROP_ENV}
-        env.update(HDF5_PLUGIN_PRELOAD="::", OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", MKL_NUM_THREADS="1",
-                   PYTHONDONTWRITEBYTECODE="1")
-        self.cpu, self.mem = int(os.environ.get(CPU_ENV, CPU_SECONDS)), address_space_limit()
+    def __init__(self, module: str = "resweep.core.format.vet_child", env: dict | None = None, extra_mem: int = 0):
+        full = {k: v for k, v in os.environ.items() if k not in _DROP_ENV}
+        full.update(HDF5_PLUGIN_PRELOAD="::", OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", MKL_NUM_THREADS="1",
+                    PYTHONDONTWRITEBYTECODE="1", **(env or {}))
+        self.module, self.env, self.extra_mem = module, dict(env or {}), int(extra_mem)
+        self.cpu, self.mem = int(os.environ.get(CPU_ENV, CPU_SECONDS)), address_space_limit() + self.extra_mem
         self.limits = os.environ.get(LIMITS_ENV, "")
         self.wall = self.cpu * 2 + 30
-        cmd = [sys.executable, "-c", "import sys; from resweep.core.format.vet_child import main; sys.exit(main())",
+        cmd = [sys.executable, "-c", f"import sys; from {module} import main; sys.exit(main())",
                str(self.cpu), str(self.mem)]
         self.err = tempfile.TemporaryFile()
         self.alive = True
-        self.proc = subprocess.Popen(cmd, env=env, stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=self.err)
+        self.proc = subprocess.Popen(cmd, env=full, stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=self.err)
         self.lines: queue.Queue = queue.Queue()
         threading.Thread(target=self._read, daemon=True, name="resweep-vet").start()
 
-    def fits(self) -> bool:
-        """Still running, and started with the limits in force now."""
+    def fits(self, module: str = "resweep.core.format.vet_child", env: dict | None = None, extra_mem: int = 0) -> bool:
+        """Still running, and started as asked with the limits in force now."""
         return (self.proc.poll() is None and self.cpu == int(os.environ.get(CPU_ENV, CPU_SECONDS))
-                and self.mem == address_space_limit() and self.limits == os.environ.get(LIMITS_ENV, ""))
+                and self.mem == address_space_limit() + int(extra_mem) and self.limits == os.environ.get(LIMITS_ENV, "")
+                and (module, dict(env or {})) == (self.module, self.env))
 
     def _read(self):
         for line in self.proc.stdout:
@@ -184,27 +192,54 @@ class _Child:
     def ask(self, path: str) -> Verdict:
         """The verdict on ``path``; when the child dies or hangs on it (then ``alive`` is False),
         the refusal saying so."""
+        got = self.exchange(json.dumps(path))
+        return got if isinstance(got, Verdict) else _answer(got, self.mem)
+
+    def exchange(self, request: str, heard=None, should_stop=None):
+        """Send one request line; the answer's dict, or a refusal :class:`Verdict` when the child
+        died, hung past its wall-time limit or answered something unreadable, or None when
+        ``should_stop()`` became True first (the child is then killed; ``alive`` is False).
+        Interim lines (``{"progress": ...}``) go to ``heard(doc)``."""
         try:
-            self.proc.stdin.write((json.dumps(path) + "\n").encode())
+            self.proc.stdin.write((request + "\n").encode())
             self.proc.stdin.flush()
         except OSError:  # it died before reading: its exit status says why
             pass
-        try:
-            line = self.lines.get(timeout=self.wall)
-        except queue.Empty:
-            self.close(kill=True)
-            return Verdict(False, reason=f"corrupt or hostile file: the isolated validator hit its wall-time "
-                                         f"limit of {self.wall} s; refused")
-        if line is None:  # the child ended before answering
-            self.proc.wait()
-            self.err.seek(0)
-            tail = self.err.read()
-            self.close()
-            return _death(self.proc.returncode, tail, self.cpu, self.mem)
-        return _answer(line)
+        deadline = time.monotonic() + self.wall
+        while True:
+            left = deadline - time.monotonic()
+            try:
+                line = self.lines.get(timeout=max(0.0, min(left, 0.1 if should_stop is not None else left)))
+            except queue.Empty:
+                if should_stop is not None and should_stop():
+                    self.close(kill=True)
+                    return None
+                if time.monotonic() < deadline:
+                    continue
+                self.close(kill=True)
+                return Verdict(False, reason=f"corrupt or hostile file: the isolated validator hit its wall-time "
+                                             f"limit of {self.wall} s; refused")
+            if line is None:  # the child ended before answering
+                self.proc.wait()
+                self.err.seek(0)
+                tail = self.err.read()
+                self.close()
+                return _death(self.proc.returncode, tail, self.cpu, self.mem)
+            try:
+                doc = json.loads(line.decode("utf-8", "replace"))
+                if not isinstance(doc, dict):
+                    raise ValueError(line)
+            except ValueError:
+                return Verdict(False, reason="the isolated validator answered something unreadable; refused")
+            if "progress" in doc:
+                if heard is not None:
+                    heard(doc)
+                continue
+            _note_peak(doc)
+            return doc
 
     def close(self, kill: bool = False):
-        """End the child: its stdin closed (it exits after the path it is on), or killed."""
+        """End the child: its stdin closed (it exits after the request it is on), or killed."""
         self.alive = False
         if kill:
             self.proc.kill()
@@ -218,6 +253,9 @@ class _Child:
             self.proc.kill()
             self.proc.wait()
         self.err.close()
+
+
+_Child = IsolatedChild
 
 
 def _start() -> _Child:
@@ -240,19 +278,15 @@ def _note_peak(doc: dict) -> None:
         peak_child_rss = got
 
 
-def _answer(line: bytes) -> Verdict:
-    """The verdict of one output line of the child."""
-    try:
-        doc = json.loads(line.decode("utf-8", "replace"))
-        _note_peak(doc)
-        if doc.get("ok"):
-            return Verdict(True)
-        if doc.get("memory"):
-            return Verdict(False, reason=f"corrupt or hostile file: the isolated validator hit the "
-                                         f"address-space limit of {address_space_limit() >> 20} MiB; refused")
-        return Verdict(False, doc.get("line", ""), doc.get("dataset"), str(doc.get("reason", "refused")))
-    except (ValueError, AttributeError):
-        return Verdict(False, reason="the isolated validator answered something unreadable; refused")
+def _answer(doc: dict, mem: int | None = None) -> Verdict:
+    """The verdict of one answer of an isolated child (``mem``: its address-space limit, bytes)."""
+    if doc.get("ok"):
+        return Verdict(True)
+    if doc.get("memory"):
+        mem = address_space_limit() if mem is None else mem
+        return Verdict(False, reason=f"corrupt or hostile file: the isolated validator hit the "
+                                     f"address-space limit of {mem >> 20} MiB; refused")
+    return Verdict(False, str(doc.get("line", "")), doc.get("dataset"), str(doc.get("reason", "refused")))
 
 
 def _death(rc: int, stderr: bytes, cpu: int, mem: int) -> Verdict:

@@ -68,22 +68,53 @@ def peak_rss() -> int | None:
 
 
 def main(argv=None) -> int:
+    return serve(argv, _Validator())
+
+
+class _Validator:
+    """The validator's answer to one request line (a path as a JSON string)."""
+
+    def __init__(self):
+        self.reset()
+
+    def reset(self):
+        """Drop what is kept between files (after a MemoryError)."""
+        from resweep.core.world.world_cache import WorldCache
+        self.worlds = WorldCache(max_bytes=_mem // 4)
+
+    def __call__(self, line: str, say) -> dict:
+        return validate(str(json.loads(line)), self.worlds)
+
+
+_mem = 0
+
+
+def serve(argv, answer) -> int:
+    """The child's loop: limit this process (``argv``: CPU seconds per request, address-space
+    bytes), then answer request after request of standard input, one line each, with one JSON
+    line (plus ``peak_rss``), flushed before the next is read. ``answer(line, say)`` returns the
+    answer's dict; ``say(doc)`` may write interim lines first (the parent reads on to the answer).
+    ``answer.reset()`` is called after a request ran out of memory."""
+    global _mem
     argv = sys.argv[1:] if argv is None else argv
-    cpu, mem = int(argv[0]), int(argv[1])
-    _limit_self(mem)
+    cpu, _mem = int(argv[0]), int(argv[1])
+    _limit_self(_mem)
     _no_plugins()
-    from resweep.core.world.world_cache import WorldCache
-    worlds = WorldCache(max_bytes=mem // 4)
+    answer.reset()
     for line in iter(sys.stdin.readline, ""):
         if not line.strip():
             continue
         _cpu_for_next(cpu)
         try:
-            doc = validate(str(json.loads(line)), worlds)
+            doc = answer(line, _say)
         except MemoryError:
             doc = {"ok": False, "memory": True}
-            worlds = WorldCache(max_bytes=mem // 4)
+            answer.reset()
         doc["peak_rss"] = peak_rss()
-        sys.stdout.write(json.dumps(doc) + "\n")
-        sys.stdout.flush()
+        _say(doc)
     return 0
+
+
+def _say(doc: dict) -> None:
+    sys.stdout.write(json.dumps(doc) + "\n")
+    sys.stdout.flush()

@@ -160,3 +160,51 @@ def test_workers_report_progress_while_their_tasks_run(cluster, soak):
         engine.close()
     assert events and all(len(msg) == 3 for _, msg in events)
     assert max(msg[1] for _, msg in events) >= 1  # a task told of a trace it had finished
+
+
+def _child_pids():
+    from resweep.core.analysis import farm_task
+    child = farm_task._child
+    return child.proc.pid if child is not None and child.alive else None
+
+
+def _gone(pid: int) -> bool:
+    try:
+        with open(f"/proc/{pid}/stat") as fh:
+            return fh.read().split(")")[-1].split()[0] == "Z"
+    except FileNotFoundError:
+        return True
+
+
+def test_cancelling_a_running_task_kills_its_isolated_child_at_once(cluster, hostile):
+    """A job that would hang for its whole CPU-time limit (60 s here: the file makes HDF5 loop)
+    ends as soon as the client cancels its task (what Ctrl-C does): the worker's check sees the
+    cancellation while it waits for its child and kills the child, instead of the task (and the
+    cluster's close) waiting for the limit."""
+    import time
+    folder, _ = hostile
+    client = distributed.Client(cluster.scheduler_address)
+    client.wait_for_workers(2, timeout=60)
+    before = client.run(lambda: os.environ.get("RESWEEP_VET_CPU"))
+    client.run(lambda: os.environ.__setitem__("RESWEEP_VET_CPU", "60"))
+    engine = DaskEngine(address=cluster.scheduler_address)
+    try:
+        fut = engine.submit([(str(folder / "hang.h5"), None)], FarmOptions(SolverSettings(), threads=1), 1)
+        deadline, busy = time.monotonic() + 60, {}
+        while not busy and time.monotonic() < deadline:  # the worker running the job has its child
+            time.sleep(0.5)
+            running = [a for a, keys in client.processing().items() if fut.key in keys]
+            busy = {a: p for a, p in client.run(_child_pids, workers=running).items() if p is not None}
+        assert busy, "no worker started a child for the job"
+        time.sleep(1.5)  # the child has the file and spins
+        engine.cancel([fut])
+        deadline = time.monotonic() + 20  # far below the 60 s the child would otherwise spin
+        while not all(_gone(p) for p in busy.values()) and time.monotonic() < deadline:
+            time.sleep(0.2)
+        assert all(_gone(p) for p in busy.values())
+    finally:
+        engine.close()
+        for addr, old in before.items():
+            client.run(lambda old=old: os.environ.pop("RESWEEP_VET_CPU", None) if old is None
+                       else os.environ.__setitem__("RESWEEP_VET_CPU", old), workers=[addr])
+        client.close()
