@@ -185,13 +185,15 @@ def check_row(i, o, start, motion, rec_end, half, world, skin, passes, tol, broa
         climb_out[o] = fl(vs, 0)
         return
     # the model is a runtime code (one compiled kernel for every model), see nb_models
-    run, hit, contact, raised, climb, plain_up = solve_model(s, m, h, world, skin, passes, broad, stack, mp, o,
-                                                             ref_end, t_out, n_out, v_out, type_out, cand_out, pts)
+    run, hit, contact, raised, climb, plain_up, d0 = solve_model(s, m, h, world, skin, passes, broad, stack, mp, o,
+                                                                 ref_end, t_out, n_out, v_out, type_out, cand_out,
+                                                                 pts)
     raised_out[o] = raised
     climb_out[o] = climb
     clear_passes(o, run, t_out, n_out, v_out, type_out, cand_out, vs)
     npass[o] = run
-    d0 = overlap_depth(s, h, world)
+    if d0 < 0:  # the first pass did not scan the start box (walked, or no motion)
+        d0 = overlap_depth(s, h, world)
     f = start_flags(o, d0, hit, tol, state, err)
     f |= classify_end(o, s, m, e, h, hit, run, contact, d0, world, tol, broad, stack, ref_end, n_out, err)
     mk, g_err, s_err = model_kinds(s, m, e, h, world, skin, tol, mp, ground[i], raised, plain_up)

@@ -198,8 +198,13 @@ def _cached(decorate):
 
 
 def kernel(**options):
-    """``@kernel(...)``: ``numba.njit(cache=True, **options)`` caching into :data:`CACHE_DIR`."""
-    return _cached(njit(cache=True, **options))
+    """``@kernel(...)``: ``numba.njit(cache=True, **options)`` caching into :data:`CACHE_DIR`.
+
+    Kernels use numpy's error model: numba's default ("python") tests every division for a zero
+    divisor to raise ``ZeroDivisionError``, a compare and branch per division in the innermost
+    loops. Every division in the kernels has a divisor that cannot be zero (guarded motion
+    components, positive voxel and chunk sizes), so results are the same bits either way."""
+    return _cached(njit(cache=True, **{"error_model": "numpy", **options}))
 
 
 def _no_refcount_option() -> dict:

@@ -10,7 +10,7 @@ import numpy as np
 
 from resweep.core.jit.nb_float import fl
 from resweep.core.jit.nb_jit import hot, kernel
-from resweep.core.world.nb_world import box_corners, box_range, chunk_lookup
+from resweep.core.world.nb_world import box_corners, box_range, chunk_lookup, chunk_of
 
 
 @kernel(inline="always")
@@ -18,10 +18,11 @@ def block_at(world, x, y, z):
     """Block type of voxel (x, y, z), 0 where no chunk holds it (voxel-order visits look up per
     voxel: the models scan a handful of voxels, and their order is part of their definition)."""
     S = world.chunk_size
-    ci = chunk_lookup(world.keys, world.slot, x // S, y // S, z // S)
+    cx, cy, cz = chunk_of(x, world), chunk_of(y, world), chunk_of(z, world)
+    ci = chunk_lookup(world.keys, world.slot, cx, cy, cz)
     if ci < 0:
         return 0
-    return world.blocks[ci, x - (x // S) * S, y - (y // S) * S, z - (z // S) * S]
+    return world.blocks[ci, x - cx * S, y - cy * S, z - cz * S]
 
 
 @kernel(inline="always")
@@ -30,7 +31,7 @@ def block_cached(world, x, y, z, memo):
     (index -2 before the first call; start with :data:`NO_MEMO`). Neighbouring voxels of a scan
     share a chunk, so most calls skip the hash lookup. Returns (type, memo)."""
     S = world.chunk_size
-    cx, cy, cz = x // S, y // S, z // S
+    cx, cy, cz = chunk_of(x, world), chunk_of(y, world), chunk_of(z, world)
     ci = memo[3]
     if ci == -2 or cx != memo[0] or cy != memo[1] or cz != memo[2]:
         ci = np.int64(chunk_lookup(world.keys, world.slot, cx, cy, cz))

@@ -83,16 +83,18 @@ def solve_model(s, m, h, world, skin, passes, broad, stack, mp, i, ref_end, t_ou
                 cand_out, pts):
     """Solve row ``i`` with the model of ``mp`` (outputs as ``nb_slide.solve_row``).
 
-    Returns (passes_run, any_hit, contact, raised, climbed, plain_up): the end before any skin
-    back-off (float 3-tuple; the models without a back-off, and a kept raised try, give their end),
-    whether the raised try of step-up was kept, the height it climbed (0 when not kept) and the up
-    coordinate of the plain solve's end.
+    Returns (passes_run, any_hit, contact, raised, climbed, plain_up, start_depth): the end before
+    any skin back-off (float 3-tuple; the models without a back-off, and a kept raised try, give
+    their end), whether the raised try of step-up was kept, the height it climbed (0 when not
+    kept), the up coordinate of the plain solve's end, and the start's overlap depth when the
+    sweep found it on the way (else -1, see ``nb_slide.search_depth``).
     """
     up = mp.up
     vs = world.voxel_size
+    d0 = fl(vs, -1)
     if mp.model == SLIDE:
-        run, hit, contact = solve_row(s, m, h, world, skin, passes, broad, stack, i, ref_end, t_out, n_out,
-                                      v_out, type_out, cand_out, pts)
+        run, hit, contact, d0 = solve_row(s, m, h, world, skin, passes, broad, stack, i, ref_end, t_out, n_out,
+                                          v_out, type_out, cand_out, pts)
         bits = 0
         for k in range(run):
             for a in range(3):
@@ -127,5 +129,5 @@ def solve_model(s, m, h, world, skin, passes, broad, stack, mp, i, ref_end, t_ou
             for k in range(1, last + 1):
                 for a in range(3):  # start, the top of the climb (when there is room), end
                     pts[i, k, a] = end[a] if k > 1 or k == last else (s[a] + climbed if a == up else s[a])
-            return run, hit, end, True, climbed, plain_up
-    return run, hit, contact, False, fl(vs, 0), plain_up
+            return run, hit, end, True, climbed, plain_up, d0
+    return run, hit, contact, False, fl(vs, 0), plain_up, d0

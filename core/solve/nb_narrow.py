@@ -41,7 +41,7 @@ import numpy as np
 from resweep.core.jit.nb_float import eps_of, fl
 from resweep.core.jit.nb_jit import hot, kernel
 from resweep.core.solve.settings import CLEAR, HIT, STARTED_INSIDE  # noqa: F401  (row states, re-exported)
-from resweep.core.world.nb_world import box_corners, chunk_in_box, chunk_lookup, use_slab
+from resweep.core.world.nb_world import box_corners, box_depth, chunk_in_box, chunk_lookup, chunk_of, use_slab
 
 
 
@@ -238,10 +238,17 @@ def narrow(p, r, h, d, v, bb, x, y, z, t, b, vs, best, mode):
 
 
 @kernel(inline="always")
-def scan_chunk(p, r, h, d, world, ci, bx, by, bz, x0, x1, y0, y1, z0, z1, best, mode):
+def no_box():
+    """An empty voxel range (i0, i1, j0, j1, k0, k1): no overlap depth wanted from a scan."""
+    return np.int64(1), np.int64(0), np.int64(1), np.int64(0), np.int64(1), np.int64(0)
+
+
+@kernel(inline="always")
+def scan_chunk(p, r, h, d, world, ci, bx, by, bz, x0, x1, y0, y1, z0, z1, best, mode, dbox):
     """Narrow phase against the solid boxes of the voxels [x0, x1] x [y0, y1] x [z0, z1], all in
-    chunk ``ci`` whose first voxel is (bx, by, bz). Arguments and result as :func:`scan_cells`."""
+    chunk ``ci`` whose first voxel is (bx, by, bz). Arguments and result as :func:`scan_region`."""
     blocks, bstart, bboxes, vs = world.blocks, world.box_start, world.boxes, world.voxel_size
+    dep = fl(vs, 0)
     for x in range(x0, x1 + 1):
         for y in range(y0, y1 + 1):
             for z in range(z0, z1 + 1):
@@ -251,29 +258,45 @@ def scan_chunk(p, r, h, d, world, ci, bx, by, bz, x0, x1, y0, y1, z0, z1, best, 
                 v = (fl(vs, x), fl(vs, y), fl(vs, z))
                 for b in range(bstart[t], bstart[t + 1]):
                     best = narrow(p, r, h, d, v, box_corners(bboxes, b), x, y, z, t, b, vs, best, mode)
+                if dbox[0] <= x <= dbox[1] and dbox[2] <= y <= dbox[3] and dbox[4] <= z <= dbox[5]:
+                    for b in range(bstart[t], bstart[t + 1]):  # the start overlap, as nb_world.chunk_depth
+                        dd = box_depth(p, h, v, box_corners(bboxes, b), vs)
+                        if dd > dep:
+                            dep = dd
                 if mode == ENTERS and best.axes != 0:
-                    return best
-    return best
+                    return best, dep
+    return best, dep
+
+
+@kernel(inline="always")
+def scan_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode):
+    """:func:`scan_region` without the overlap depth: the updated search state."""
+    return scan_region(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode, no_box())[0]
 
 
 @hot
-def scan_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode):
+def scan_region(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode, dbox):
     """Narrow phase against every solid box of the voxels [i0, i1] x [j0, j1] x [k0, k1].
 
     Args:
         p, r, h: float 3-tuples: centre, motion, half extents (world units).
         d: touch margins of the sweep per axis (:func:`touch_margin`), world units.
         best: search state to continue from; mode: FIRST_HIT or ENTERS (stops at the first entry).
+        dbox: int64 6-tuple, the voxel ranges of the box (p, h) (``nb_world.box_range``), inside
+            the scanned ones, or :func:`no_box`. The start-overlap query visits a subset of the
+            voxels the sweep's first pass visits, so the scan also folds in the overlap depth of
+            the box at p (the same operations and maximum as ``nb_world.overlap_depth``).
     Returns:
-        the updated search state.
+        (the updated search state, that depth: 0 when dbox is empty or in ENTERS mode).
 
     A range spanning many chunk coordinates (a huge box or motion in a sparse world) visits the
     chunks of its thinnest slab instead of every coordinate, so the cost is bounded by the chunks
     that exist; the result does not depend on the visiting order (see the module docstring).
     """
-    keys, slot, S = world.keys, world.slot, world.chunk_size
-    c0 = (i0 // S, j0 // S, k0 // S)
-    c1 = (i1 // S, j1 // S, k1 // S)
+    keys, slot = world.keys, world.slot
+    c0 = (chunk_of(i0, world), chunk_of(j0, world), chunk_of(k0, world))
+    c1 = (chunk_of(i1, world), chunk_of(j1, world), chunk_of(k1, world))
+    dep = fl(world.voxel_size, 0)
     ax, a, b, slab = use_slab(world, c0, c1)
     if slab:
         cc = world.chunk_coord
@@ -281,28 +304,30 @@ def scan_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode):
             ci = world.axis_chunks[ax, q]
             if not chunk_in_box(world, ci, c0, c1):
                 continue
-            best = scan_clipped(p, r, h, d, world, ci, cc[ci, 0], cc[ci, 1], cc[ci, 2], i0, i1, j0, j1, k0, k1,
-                                best, mode)
+            best, dd = scan_clipped(p, r, h, d, world, ci, cc[ci, 0], cc[ci, 1], cc[ci, 2], i0, i1, j0, j1, k0, k1,
+                                    best, mode, dbox)
+            dep = max(dep, dd)
             if mode == ENTERS and best.axes != 0:
-                return best
-        return best
+                return best, dep
+        return best, dep
     for cx in range(c0[0], c1[0] + 1):
         for cy in range(c0[1], c1[1] + 1):
             for cz in range(c0[2], c1[2] + 1):
                 ci = chunk_lookup(keys, slot, cx, cy, cz)
                 if ci < 0:
                     continue
-                best = scan_clipped(p, r, h, d, world, ci, cx, cy, cz, i0, i1, j0, j1, k0, k1, best, mode)
+                best, dd = scan_clipped(p, r, h, d, world, ci, cx, cy, cz, i0, i1, j0, j1, k0, k1, best, mode, dbox)
+                dep = max(dep, dd)
                 if mode == ENTERS and best.axes != 0:
-                    return best
-    return best
+                    return best, dep
+    return best, dep
 
 
 @kernel(inline="always")
-def scan_clipped(p, r, h, d, world, ci, cx, cy, cz, i0, i1, j0, j1, k0, k1, best, mode):
+def scan_clipped(p, r, h, d, world, ci, cx, cy, cz, i0, i1, j0, j1, k0, k1, best, mode, dbox):
     """:func:`scan_chunk` over the part of [i0, i1] x [j0, j1] x [k0, k1] inside chunk ``ci``
     (chunk coordinate cx, cy, cz)."""
     S = world.chunk_size
     bx, by, bz = cx * S, cy * S, cz * S
     return scan_chunk(p, r, h, d, world, ci, bx, by, bz, max(i0, bx), min(i1, bx + S - 1),
-                      max(j0, by), min(j1, by + S - 1), max(k0, bz), min(k1, bz + S - 1), best, mode)
+                      max(j0, by), min(j1, by + S - 1), max(k0, bz), min(k1, bz + S - 1), best, mode, dbox)

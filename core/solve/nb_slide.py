@@ -21,9 +21,9 @@ import numpy as np
 from resweep.core.jit.nb_float import fl
 from resweep.core.jit.nb_jit import hot, kernel
 from resweep.core.solve.settings import AUTO, SCAN
-from resweep.core.solve.nb_narrow import ENTERS, FIRST_HIT, blocked_axes, scan_cells, start_best, touch_margin
+from resweep.core.solve.nb_narrow import ENTERS, FIRST_HIT, blocked_axes, no_box, scan_region, start_best, touch_margin
 from resweep.core.solve.nb_walk import walk_cells
-from resweep.core.world.nb_world import sweep_range
+from resweep.core.world.nb_world import box_range, sweep_range
 
 #: In AUTO, swept boxes of more voxels than this are walked (measured crossover on a floor with
 #: pillars: from ~140 voxels the walk wins when the sweep hits something, from ~1000 when not).
@@ -33,18 +33,36 @@ AUTO_CELLS = 128
 @kernel(inline="always")
 def search(p, r, h, world, broad, mode, stack):
     """Search state (see nb_narrow.Search) of the straight motion p -> p + r against the world."""
+    return search_depth(p, r, h, world, broad, mode, stack, False)[0]
+
+
+@kernel(inline="always")
+def search_depth(p, r, h, world, broad, mode, stack, want_depth):
+    """(:func:`search`, depth): with ``want_depth``, ``depth`` is the overlap depth of the box at
+    the start p with solid (``nb_world.overlap_depth``, same bits) when the scan of the swept box
+    covered it, else -1 (the walk, or a start range outside the swept one: ask overlap_depth)."""
     best = start_best(world.voxel_size)
     # A run-time int, not the caller's literal: one compiled walk and scan serve both modes
     # (numba would otherwise compile each for every literal mode, doubling compile time).
     mode = np.int64(mode)
+    dep = fl(world.voxel_size, -1)
+    dbox = no_box()
+    if want_depth:
+        dbox = box_range(p, h, world)
+        if dbox[0] > dbox[1] or dbox[2] > dbox[3] or dbox[4] > dbox[5]:
+            dep = fl(world.voxel_size, 0)  # no voxel near the start box: overlap_depth's answer
+            dbox = no_box()
     i0, i1, j0, j1, k0, k1 = sweep_range(p, r, h, world)
     if i0 > i1 or j0 > j1 or k0 > k1:
-        return best
+        return best, dep
     d = touch_margin(p, r, h, world.voxel_size)
     if broad == SCAN or (broad == AUTO and float(i1 - i0 + 1) * float(j1 - j0 + 1) * float(k1 - k0 + 1)
                          <= AUTO_CELLS):
-        return scan_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode)
-    return walk_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode, stack)
+        inside = (dbox[0] <= dbox[1] and i0 <= dbox[0] and dbox[1] <= i1 and j0 <= dbox[2] and dbox[3] <= j1
+                  and k0 <= dbox[4] and dbox[5] <= k1)
+        best, dd = scan_region(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode, dbox if inside else no_box())
+        return best, dd if inside else dep
+    return walk_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode, stack), dep
 
 
 @kernel()  # called once per pass or row: not worth inlining (compile time)
@@ -109,8 +127,10 @@ def solve_row(p0, m, h, world, skin, passes, broad, stack, i, ref_end, t_out, n_
             the exact contact), then the end; entries after the last pass repeat the end. Per
             axis the path moves only toward the wanted displacement.
     Returns:
-        (passes_run, any_hit, contact): ``contact`` is the end before the back-off (float 3-tuple):
-        on every blocked axis the exact contact centre of that axis's hit face.
+        (passes_run, any_hit, contact, start_depth): ``contact`` is the end before the back-off
+        (float 3-tuple): on every blocked axis the exact contact centre of that axis's hit face;
+        ``start_depth`` the overlap depth of the box at ``p0`` found by the first pass's scan
+        (``nb_world.overlap_depth``), -1 when that pass did not scan it (see :func:`search_depth`).
 
     Inlined into its caller (one call site): passing this many arrays costs more than a pass.
     """
@@ -121,13 +141,17 @@ def solve_row(p0, m, h, world, skin, passes, broad, stack, i, ref_end, t_out, n_
     blk = 0
     any_hit = False
     run = 0
+    d0 = fl(vs, -1)
     for k in range(passes):
         pts[i, k, 0] = bk[0] if blk & 1 else p[0]
         pts[i, k, 1] = bk[1] if blk & 2 else p[1]
         pts[i, k, 2] = bk[2] if blk & 4 else p[2]
         if r[0] == 0 and r[1] == 0 and r[2] == 0:
             break
-        tmin, axes, hx, hy, hz, hb, htype, cand = search(p, r, h, world, broad, FIRST_HIT, stack)
+        found, dk = search_depth(p, r, h, world, broad, FIRST_HIT, stack, k == 0)
+        if k == 0:
+            d0 = dk
+        tmin, axes, hx, hy, hz, hb, htype, cand = found
         run += 1
         t_out[i, k] = tmin + fl(vs, 0)  # no negative zero in reports
         v_out[i, k, 0] = hx
@@ -164,7 +188,7 @@ def solve_row(p0, m, h, world, skin, passes, broad, stack, i, ref_end, t_out, n_
     for k in range(run, passes + 1):
         for a in range(3):
             pts[i, k, a] = p[a]
-    return run, any_hit, contact
+    return run, any_hit, contact, d0
 
 
 @hot

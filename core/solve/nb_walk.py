@@ -35,8 +35,8 @@ import numpy as np
 
 from resweep.core.jit.nb_float import fl
 from resweep.core.jit.nb_jit import hot, kernel
-from resweep.core.solve.nb_narrow import ENTERS, box_interval, scan_cells, scan_chunk
-from resweep.core.world.nb_world import any_chunk, chunk_lookup
+from resweep.core.solve.nb_narrow import ENTERS, box_interval, no_box, scan_cells, scan_chunk
+from resweep.core.world.nb_world import any_chunk, chunk_lookup, chunk_of
 
 #: Regions of at most this many voxels are scanned directly.
 LEAF_CELLS = 24
@@ -117,11 +117,13 @@ def walk_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode, stack):
             continue
         if mode != ENTERS and best.axes != 0 and te > best.tmin:
             continue
-        one_chunk = x0 // S == x1 // S and y0 // S == y1 // S and z0 // S == z1 // S
-        ci = chunk_lookup(keys, slot, x0 // S, y0 // S, z0 // S) if one_chunk else -1
+        cx0, cy0, cz0 = chunk_of(x0, world), chunk_of(y0, world), chunk_of(z0, world)
+        cx1, cy1, cz1 = chunk_of(x1, world), chunk_of(y1, world), chunk_of(z1, world)
+        one_chunk = cx0 == cx1 and cy0 == cy1 and cz0 == cz1
+        ci = chunk_lookup(keys, slot, cx0, cy0, cz0) if one_chunk else -1
         if one_chunk and ci < 0:
             continue  # all air
-        if not one_chunk and not any_chunk(world, (x0 // S, y0 // S, z0 // S), (x1 // S, y1 // S, z1 // S)):
+        if not one_chunk and not any_chunk(world, (cx0, cy0, cz0), (cx1, cy1, cz1)):
             continue  # meets no chunk: all air
         nx, ny, nz = x1 - x0 + 1, y1 - y0 + 1, z1 - z0 + 1
         small = nx <= LEAF_CELLS and ny <= LEAF_CELLS and nz <= LEAF_CELLS and nx * ny * nz <= LEAF_CELLS
@@ -130,8 +132,8 @@ def walk_cells(p, r, h, d, world, i0, i1, j0, j1, k0, k1, best, mode, stack):
             continue
         # A leaf (the stack bound is never reached, see STACK_ROWS; scanning stays correct).
         if one_chunk:
-            best = scan_chunk(p, r, h, d, world, ci, x0 // S * S, y0 // S * S, z0 // S * S,
-                              x0, x1, y0, y1, z0, z1, best, mode)
+            best = scan_chunk(p, r, h, d, world, ci, cx0 * S, cy0 * S, cz0 * S,
+                              x0, x1, y0, y1, z0, z1, best, mode, no_box())[0]
         else:
             best = scan_cells(p, r, h, d, world, x0, x1, y0, y1, z0, z1, best, mode)
         if mode == ENTERS and best.axes != 0:

@@ -15,7 +15,8 @@ class KernelWorld(NamedTuple):
     Attributes:
         keys: int64 (H, 3) chunk coordinates of the hash table; slot: int32 (H,) chunk index or -1.
         blocks: uint16 (C, S, S, S) block types (shared with the world, edited in place).
-        chunk_size: int64 S.
+        chunk_size: int64 S; chunk_shift: int64 log2(S) when S is a power of two, else -1 (chunk
+            coordinates are then a shift, not an integer division: see nb_world.chunk_of).
         lo, hi: int64 (3,) voxel bounds of all chunks (hi exclusive).
         box_start: int64 (T+1,) and boxes: float (B, 6): block shapes (CSR, voxel-local units).
         reach: int64, 1 when some shape reaches past its cell.
@@ -34,6 +35,7 @@ class KernelWorld(NamedTuple):
     slot: np.ndarray
     blocks: np.ndarray
     chunk_size: np.int64
+    chunk_shift: np.int64
     lo: np.ndarray
     hi: np.ndarray
     box_start: np.ndarray
@@ -69,7 +71,9 @@ def kernel_world(world: VoxelWorld, dtype) -> KernelWorld:
     coord = np.ascontiguousarray(np.asarray(world.chunk_origin, np.int64).reshape(-1, 3) // world.chunk_size)
     order = np.argsort(coord, axis=0, kind="stable").T.copy()  # (3, C)
     keys = np.take_along_axis(coord.T, order, axis=1).copy()
-    kw = KernelWorld(world.keys, world.slot, world.blocks, np.int64(world.chunk_size),
+    S = int(world.chunk_size)
+    shift = S.bit_length() - 1 if S & (S - 1) == 0 else -1
+    kw = KernelWorld(world.keys, world.slot, world.blocks, np.int64(S), np.int64(shift),
                      np.asarray(world.lo, np.int64).copy(), np.asarray(world.hi, np.int64).copy(),
                      np.ascontiguousarray(shapes.box_start, np.int64), boxes, np.int64(shapes.reach),
                      ft(world.voxel_size), np.asarray(ext, dt), coord, keys, order.astype(np.int64))
