@@ -61,8 +61,17 @@ class Story:
     prev_end: np.ndarray | None = None
     small: bool = False
     dim: tuple | None = None
-    view_dir: np.ndarray = field(default_factory=lambda: np.array([0.0, 1.0, 0.0]))
     normals: list = field(default_factory=list)
+    # The camera direction, or a function choosing it: the search costs milliseconds per frame
+    # and only a camera that is being pointed reads it (the viewer's scrub keeps its camera).
+    _view: object = field(default=None, repr=False)
+
+    @property
+    def view_dir(self) -> np.ndarray:
+        """float64 (3,) unit vector from the framed centre toward the camera, chosen on first use."""
+        if callable(self._view):
+            self._view = self._view()
+        return self._view if self._view is not None else np.array([0.0, 1.0, 0.0])
 
     @property
     def centre(self) -> np.ndarray:
@@ -227,9 +236,15 @@ def tell_story(session, state, col: int) -> Story | None:
         tg.append((story.overlap[:, :3] + story.overlap[:, 3:]) / 2)
     story.targets = np.concatenate(tg)
     # Occluders that matter are near the key points: look 8 voxels around each (fast for far pairs).
+    # Read now: the world moves on with the session, the direction is chosen later.
     near = [solid_boxes(world, c - half - 8 * vs, c + half + 8 * vs) for c in centres]
     view_solid = np.unique(np.concatenate(near), axis=0) if near else np.zeros((0, 6))
-    story.view_dir = choose_view(story, _motion(state, col), "xyz".index(session.trace.up_axis), view_solid)
+    motion, up = _motion(state, col).copy(), "xyz".index(session.trace.up_axis)
+
+    def view():
+        return choose_view(story, motion, up, view_solid)
+
+    story._view = view
     return story
 
 

@@ -186,3 +186,29 @@ def test_sight_lines_of_every_direction_at_once_count_as_one_at_a_time():
         own = ((solid[:, :3] < p + half) & (solid[:, 3:] > p - half)).all(axis=1)
         want = [min(len(crossed_boxes(solid[~own], p, p + s, np.zeros(3))), 3) / 3.0 for s in steps]
         assert _blocked_many(solid, p, steps, half).tolist() == want
+
+
+def test_camera_direction_is_chosen_once_when_read_and_not_on_a_scrub(monkeypatch):
+    """The story's camera direction is searched only when a camera is pointed: a scrub that keeps
+    the camera must not pay for it, and a direction read later is the one its own frame gives."""
+    from resweep.app.scene import story as story_mod
+    calls = []
+    real = story_mod.choose_view
+    monkeypatch.setattr(story_mod, "choose_view", lambda *a: calls.append(1) or real(*a))
+    with TraceSession(QUARRY) as s:
+        col = s.column_of(102)
+        told = story_mod.tell_story(s, s.frame_state(40), col)
+        assert calls == []
+        s.frame_state(41)  # the session moves on before the direction is read
+        late = told.view_dir
+        assert len(calls) == 1 and np.array_equal(told.view_dir, late) and len(calls) == 1
+        fresh = story_mod.tell_story(s, s.frame_state(40), col).view_dir
+        assert np.array_equal(late, fresh) and abs(np.linalg.norm(late) - 1.0) < 1e-12
+        plotter, vp = story_viewport(s, 40, 102)
+        try:
+            before = len(calls)
+            for f in (41, 42, 43):
+                vp.show(s.frame_state(f), col)
+            assert len(calls) == before  # scrubbing keeps the camera: no search
+        finally:
+            plotter.close()
