@@ -159,6 +159,12 @@ class _CellArrays:
         self._mesh.GetCellData().AddArray(arr)
 
 
+def _camera_vector(name: str) -> property:
+    """A (3,) property read and written through the active VTK camera's Get<name>/Set<name>."""
+    return property(lambda self: getattr(self._cam, "Get" + name)(),
+                    lambda self, value: getattr(self._cam, "Set" + name)(*(float(v) for v in value)))
+
+
 class OffscreenCamera:
     """The renderer's active camera with pyvista-style ``position``, ``focal_point`` and ``up``
     (tuples of 3 floats, world units)."""
@@ -170,29 +176,9 @@ class OffscreenCamera:
     def _cam(self):
         return self._renderer.GetActiveCamera()
 
-    @property
-    def position(self):
-        return self._cam.GetPosition()
-
-    @position.setter
-    def position(self, value):
-        self._cam.SetPosition(*(float(v) for v in value))
-
-    @property
-    def focal_point(self):
-        return self._cam.GetFocalPoint()
-
-    @focal_point.setter
-    def focal_point(self, value):
-        self._cam.SetFocalPoint(*(float(v) for v in value))
-
-    @property
-    def up(self):
-        return self._cam.GetViewUp()
-
-    @up.setter
-    def up(self, value):
-        self._cam.SetViewUp(*(float(v) for v in value))
+    position = _camera_vector("Position")
+    focal_point = _camera_vector("FocalPoint")
+    up = _camera_vector("ViewUp")
 
 
 class OffscreenPlotter:
