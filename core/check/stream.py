@@ -3,6 +3,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+import numba
 import numpy as np
 
 from resweep.core.check import nb_gather
@@ -110,7 +111,7 @@ def step_info(rows: RowResults, i: int, voxel_size: float) -> dict:
 
 def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit: int = 1000,
                 progress=None, on_block=None, should_stop=None, rows_per_block: int = 1 << 17,
-                frames: tuple[int, int] | None = None) -> TraceReport:
+                frames: tuple[int, int] | None = None, prefetch: bool | None = None) -> TraceReport:
     """Re-solve every active entity-frame of ``trace`` and classify the recorded run.
 
     Frames stream in blocks of about ``rows_per_block`` entity-frames (the next block is read
@@ -125,6 +126,12 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
     from the recorded end of frame ``f0 - 1``, exactly as a whole-trace check measures it, so the
     counts of consecutive ranges add up to the whole trace's and their divergence lists, joined in
     range order, are its list.
+
+    ``prefetch``: read the next block on a background thread while this one is solved. None (the
+    default) prefetches only when the kernels may use more than one thread
+    (``numba.get_num_threads()``): with one solver thread the check stays on one thread, so
+    ``--threads 1`` and a farm worker with one thread use one core, not one and a third (reading
+    and decompressing a 6 M entity-frame trace is about a quarter of its CPU time).
     """
     report = TraceReport(trace.path, trace.frame_count, trace.entity_count, 0, ended_early=trace.ended_early_info())
     world = trace.world()
@@ -140,7 +147,9 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
         before = trace.frames(f0 - 1, f0)
         prev_end, prev_active, has_prev = np.asarray(before.end[-1], np.float64), before.active[-1].copy(), True
     buf = _Buffers(dt, settings.passes, keep_rows=on_block is None)
-    for blk in trace.iter_frames(rows_per_block, f0, f1, prefetch=True):
+    if prefetch is None:
+        prefetch = numba.get_num_threads() > 1
+    for blk in trace.iter_frames(rows_per_block, f0, f1, prefetch=prefetch):
         if should_stop is not None and should_stop():
             report.cancelled = True
             break
@@ -160,7 +169,8 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
             half = blk.half[0][col] if blk.half.strides[0] == 0 else blk.half[fr, col]
             ground = None if blk.grounded is None else blk.grounded[fr, col]
             flags, rows, kept = _solve_segment(world, settings, buf, (start, motion, end, half), ground, gap, disc,
-                                               trace.up_axis, every_row=on_block is not None)
+                                               trace.up_axis, every_row=on_block is not None,
+                                               details=max(0, limit - len(report.divergences)))
             report.entity_frames += M
             _count(report, flags)
             _collect(report, trace, rows, blk, fr[kept], col[kept], limit, dt, settings.step_height > 0)
@@ -174,21 +184,25 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
     return report
 
 
-def _solve_segment(world, settings, buf, rows_in, ground, gap, disc, up, every_row: bool):
+def _solve_segment(world, settings, buf, rows_in, ground, gap, disc, up, every_row: bool, details: int):
     """Solve and classify the M rows of one segment: (flags int32 (M,) with the discontinuity bit,
     RowResults of the kept rows, int64 indices of the kept rows). ``rows_in``: start, motion,
     recorded end, half float (M, 3); ``gap`` float64 and ``disc`` bool (M,) from the gather.
 
     With ``every_row`` every row is kept with all its results (a block listener reads them);
-    otherwise the kernel writes only the flags, and the rows that diverge are solved again with
-    every output for their details (counts need only the flags)."""
+    otherwise the kernel writes only the flags, and the first ``details`` rows that diverge are
+    solved again with every output for their details (counts need only the flags; each diverging
+    row gives the report at least one divergence, so ``details`` rows fill the room left under
+    the report's limit, and the rows after them would be dropped by ``_collect`` anyway)."""
     M = len(disc)
     if every_row:
         rows = solve_rows(world, *rows_in, settings, out=buf.rows_out(M), up=up, grounded=ground)
         kept = np.arange(M)
     else:
         flags = flag_rows(world, *rows_in, settings, buf.flags_out(M), up=up, grounded=ground)
-        kept = np.flatnonzero(flags | disc)
+        kept = np.flatnonzero(flags | disc)[:details]
+        if not len(kept):  # nothing to detail: no second kernel call (a summary-only farm's traces)
+            return flags | (disc.astype(np.int32) << DISCONTINUITY), None, kept
         rows = solve_rows(world, *(a[kept] for a in rows_in), settings, out=buf.rows_out(len(kept)), up=up,
                           grounded=None if ground is None else ground[kept])
     d = disc[kept]
@@ -245,7 +259,7 @@ def _collect(report: TraceReport, trace: Trace, rows: RowResults, blk, fr, cols,
     ``limit``; inputs are read from the block (file dtype) only for the rows kept. ``dtype``: the
     solve's float type (an invalid row's reason is judged in it, as the kernel judged the row);
     ``stepping``: step-up is on, so records say which try was kept."""
-    if len(report.divergences) >= limit:
+    if len(report.divergences) >= limit or rows is None:
         return
     for i in np.flatnonzero(rows.flags):
         r, c = fr[i], cols[i]

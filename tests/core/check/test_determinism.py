@@ -129,6 +129,49 @@ def test_same_results_in_process_after_set_num_threads(base):
     assert one[0] == two[0] and _digest(one[1]) == _digest(two[1])
 
 
+def test_one_solver_thread_reads_on_the_calling_thread(base):
+    """With one solver thread the check starts no reader thread (``--threads 1`` and a farm worker
+    with one thread use one core); prefetching or not, the results are the same bytes."""
+    import threading
+    import numba
+    _, path = base
+    before = numba.get_num_threads()
+    seen = []
+
+    def readers(_block):
+        seen.append(sum(t.name.startswith("resweep-read") for t in threading.enumerate()))
+
+    try:
+        numba.set_num_threads(1)
+        with open_trace(path) as tr:
+            check_trace(tr, SolverSettings(), on_block=readers, rows_per_block=500)
+        one, alone = seen[:], _run(path, rows_per_block=500)
+        seen.clear()
+        numba.set_num_threads(min(2, numba.config.NUMBA_NUM_THREADS))
+        with open_trace(path) as tr:
+            check_trace(tr, SolverSettings(), on_block=readers, rows_per_block=500, prefetch=True)
+        ahead = _run(path, rows_per_block=500)
+    finally:
+        numba.set_num_threads(before)
+    assert len(one) > 3 and max(one) == 0  # many blocks, none read on another thread
+    assert max(seen) == 1  # prefetch=True does read ahead on one thread
+    assert alone[0] == ahead[0] and _digest(alone[1]) == _digest(ahead[1])
+
+
+@pytest.mark.parametrize("limit", [0, 1, 7, 250])
+def test_a_limited_report_is_the_head_of_the_full_one(base, limit):
+    """A report with ``limit`` keeps exactly the first ``limit`` divergences of the unlimited
+    report, with the same exact counts (the check details only as many diverging rows as the
+    limit leaves room for, block after block)."""
+    _, path = base
+    with open_trace(path) as tr:
+        full = check_trace(tr, SolverSettings(), limit=10 ** 9, rows_per_block=700).as_json()
+        head = check_trace(tr, SolverSettings(), limit=limit, rows_per_block=700).as_json()
+    assert len(full["divergences"]) > 250 * 2
+    assert head["counts"] == full["counts"]
+    assert head["divergences"] == full["divergences"][:limit]
+
+
 def test_entity_order_does_not_matter(base, tmp_path):
     kw, path = base
     perm = np.random.default_rng(1).permutation(len(kw["entity_ids"]))
