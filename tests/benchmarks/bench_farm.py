@@ -10,6 +10,8 @@
 2. One yardstick trace of 200 entities x 30000 frames (6 M entity-frames) split into frame ranges
    on 2 local workers (1 solver thread each) against 1 worker with 1 thread (target >= 1.6x); the
    plain 2-thread ``resweep check`` is shown too, and the split counts are checked against it.
+3. ``--only warm``: both of the above on an already started cluster (the steady state of a
+   long-lived one). 4. ``--only pertrace``: where one small trace's time goes, in one process.
 """
 from __future__ import annotations
 
@@ -163,11 +165,58 @@ def run_warm(args) -> list[Row]:
     ]
 
 
+def run_pertrace(args) -> list[Row]:
+    """Where one small trace's time goes, in this process with one solver thread (no profiler):
+    opening and validating it (``open_trace`` with a world cache, as a farm child opens it), checking
+    it (limit 0, as ``--summary-only``), closing it; and the floor of plain h5py on the same files
+    (open, read every dataset but the world's blocks, close, no checks of ours). Medians over ``--small`` traces after 20
+    untimed ones."""
+    import glob
+    import h5py
+    import numba
+    from resweep.core import SolverSettings, open_trace
+    from resweep.core.check.rows import warm_up
+    from resweep.core.check.stream import check_trace
+    from resweep.core.world.world_cache import WorldCache
+    make_trace(args, f"farm_concat_10x{args.small * 100}.h5", entities=10, frames=args.small * 100)
+    files = sorted(glob.glob(str(small_traces(args, args.workdir / f"farm_concat_10x{args.small * 100}.h5",
+                                              args.small) / "*.h5")))
+    warm_up("float64", "float32")
+    numba.set_num_threads(1)
+    worlds, settings = WorldCache(), SolverSettings()
+    parts = {"open": [], "check": [], "close": [], "h5py": []}
+
+    def plain(path):  # every dataset but the world's blocks, which a farm child decodes once per world
+        with h5py.File(path, "r") as f:
+            f.visititems(lambda name, obj: obj[()] if isinstance(obj, h5py.Dataset)
+                         and name != "world/chunk_blocks" else None)
+    for i, path in enumerate(files):
+        t0 = time.perf_counter()
+        tr = open_trace(path, worlds=worlds)
+        t1 = time.perf_counter()
+        check_trace(tr, settings, limit=0)
+        t2 = time.perf_counter()
+        tr.close()
+        t3 = time.perf_counter()
+        plain(path)
+        t4 = time.perf_counter()
+        if i >= 20:
+            for k, v in zip(parts, (t1 - t0, t2 - t1, t3 - t2, t4 - t3)):
+                parts[k].append(v * 1e3)
+    med = {k: statistics.median(v) for k, v in parts.items()}
+    return [
+        Row("one small trace in one process: open+validate / check / close (median, ms)",
+            f"{med['open']:.2f} / {med['check']:.2f} / {med['close']:.2f}", "", "bench_farm.py --only pertrace"),
+        Row("  plain h5py on the same files: open, read every dataset but the world's blocks, close (median, ms)",
+            f"{med['h5py']:.2f}"),
+    ]
+
+
 def main(argv=None) -> int:
     ap = common_args(__doc__.splitlines()[0])
     ap.add_argument("--small", type=int, default=1000, help="small traces (1,000 entity-frames each)")
     ap.add_argument("--workers", type=int, default=2)
-    ap.add_argument("--only", choices=("small", "split", "warm"), default=None)
+    ap.add_argument("--only", choices=("small", "split", "warm", "pertrace"), default=None)
     args = ap.parse_args(argv)
     rows = []
     if args.only in (None, "small"):
@@ -176,6 +225,8 @@ def main(argv=None) -> int:
         rows += run_split(args)
     if args.only in (None, "warm"):
         rows += run_warm(args)
+    if args.only in (None, "pertrace"):
+        rows += run_pertrace(args)
     print_table("farms", rows)
     return 0
 
