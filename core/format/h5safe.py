@@ -12,6 +12,7 @@ one h5py dataset per dataset (:class:`_Shared`), and refreshes go through that o
 """
 from __future__ import annotations
 
+import math
 import os
 import threading
 
@@ -92,6 +93,7 @@ class SafeFile:
         self._key, self._shared = key, shared
         self.file, self.swmr = shared.file, shared.swmr
         self._groups: dict = {}  # path -> group reached through hard links, for later lookups under it
+        self._tables: dict = {}  # path -> that group's {link name: link type}, None when it has too many
 
     def _open(self, swmr: bool) -> tuple[h5py.File, bool]:
         """(h5py file, opened in SWMR mode) of a file this process does not have open yet."""
@@ -158,7 +160,7 @@ class SafeFile:
         for i, part in enumerate(parts[first:], first):
             walked += "/" + part
             try:
-                link = _link(node, part)
+                link = self._link(node, walked.rsplit("/", 1)[0] or "/", part)
             except H5_FAILURES as exc:
                 raise self.fail(walked, f"cannot read link: {exc}") from None
             if link is None:
@@ -180,6 +182,20 @@ class SafeFile:
         if isinstance(node, h5py.Group):
             self._groups[walked] = node  # reached through hard links only (soft ones returned above)
         return node
+
+    def _link(self, group, path: str, part: str):
+        """:func:`_link` of ``part`` in ``group`` (at hard path ``path``), answered from the
+        group's link table when it has one: a group's links are listed once, in one HDF5 call,
+        instead of two calls per name looked up."""
+        table = self._tables.get(path, False)
+        if table is False:
+            table = self._tables[path] = _link_table(group)
+        if table is None:
+            return _link(group, part)
+        kind = table.get(_name(part))
+        if kind is None:
+            return None
+        return _HARD_LINK if kind == _HARD else _link(group, part)  # soft and external: checked one by one
 
     def group(self, name: str, required: bool = True):
         node = self._resolve(name)
@@ -204,12 +220,13 @@ class SafeFile:
             return None
         if not isinstance(node, h5py.Dataset):
             raise self.fail(name, "must be a dataset, found a group")
-        try:
-            if node.is_virtual:
+        try:  # low-level reads of the creation properties: h5py's properties each fetch them again
+            dsid = node.id
+            plist = dsid.get_create_plist()
+            if plist.get_layout() == h5py.h5d.VIRTUAL:
                 raise self.fail(name, "is a virtual dataset; refused (it would read other files)")
-            if node.external:
+            if plist.get_external_count():
                 raise self.fail(name, "uses external raw storage; refused (it would read other files)")
-            plist = node.id.get_create_plist()
             for k in range(plist.get_nfilters()):
                 fid = plist.get_filter(k)[0]
                 if fid not in ALLOWED_FILTERS:
@@ -223,7 +240,7 @@ class SafeFile:
             raise self.fail(name, f"cannot read dataset header (truncated or corrupt?): {exc}") from None
         if shape is None:
             raise self.fail(name, "has no data (null dataspace)")
-        declared = int(np.prod(shape, dtype=object)) * int(itemsize)
+        declared = math.prod(shape) * int(itemsize)  # Python ints: no overflow
         limit = self.size * MAX_EXPANSION + SLACK_BYTES
         if declared > limit:
             raise self.fail(name, f"declares {declared:,} bytes of data, more than a {self.size:,}-byte file "
@@ -259,15 +276,45 @@ class SafeFile:
         except H5_FAILURES as exc:
             raise self.fail(ds.name, f"cannot read data (truncated or corrupt?): {exc}") from None
 
+    def read_flags(self, ds, sel=()) -> np.ndarray:
+        """``ds[sel] != 0`` as a bool array, for a dataset of one-byte flags (h5py's bool, an
+        enum of one byte, or a one-byte integer) and ``sel`` a tuple of unit-step slices.
+
+        Read as the file stores it, byte for byte: HDF5 converts nothing between a type and
+        itself, where h5py's bool goes through a conversion of its own per read (five times the
+        cost of the read on a small trace)."""
+        try:
+            ftype = ds.id.get_type()
+            shape = ds.shape
+            if ftype.get_size() != 1 or shape is None:
+                return self.read(ds, sel) != 0
+            sel = sel if isinstance(sel, tuple) else (sel,)
+            if len(sel) > len(shape) or any(not isinstance(s, slice) or s.step not in (None, 1) for s in sel):
+                return self.read(ds, sel) != 0
+            box = [s.indices(n)[:2] for s, n in zip(sel + (slice(None),) * (len(shape) - len(sel)), shape)]
+            count = tuple(max(0, b - a) for a, b in box)
+            raw = np.empty(count, np.uint8)
+            if raw.size:
+                fspace = ds.id.get_space()
+                if shape:
+                    fspace.select_hyperslab(tuple(a for a, _ in box), count)
+                ds.id.read(h5py.h5s.create_simple(count) if shape else h5py.h5s.ALL, fspace, raw, mtype=ftype)
+        except TraceFormatError:
+            raise
+        except H5_FAILURES as exc:
+            raise self.fail(ds.name, f"cannot read data (truncated or corrupt?): {exc}") from None
+        return raw != 0
+
     def stored_digest(self, ds) -> bytes | None:
         """Digest of ``ds`` as the file stores it: shape, dtype, layout, filter pipeline and the
         raw (still compressed) bytes of every chunk, read without decoding them. Two datasets
         with the same digest decode to the same array, so a decoded copy can be reused (a farm's
         world cache). None for an unchunked dataset (nothing to save: it is stored uncompressed).
 
-        The chunks' places come from HDF5's chunk index; their bytes are read from the file in
-        one ``pread`` when they lie close together (a chunk-by-chunk read through HDF5 costs
-        more than the rest of a small trace's open). A chunk that reaches past the end of the
+        The chunks' places come from HDF5's chunk index; their bytes are read from the file
+        directly (a chunk-by-chunk read through HDF5 costs more than the rest of a small trace's
+        open): hashed in one pass when they lie back to back in index order, as a writer leaves
+        them, else read in one ``pread`` when they lie close together, else one by one. A chunk that reaches past the end of the
         file is refused, as HDF5's own read would.
         """
         import hashlib
@@ -286,30 +333,56 @@ class SafeFile:
             raise self.fail(ds.name, f"cannot read stored chunks (truncated or corrupt?): {exc}") from None
         if not spots:
             return h.digest()
+        rank = len(ds.chunks)
+        # one row per chunk: its offset in the dataset, filter mask, size and place in the file
+        # (-1 when HDF5 gives none); the place is not hashed, so a world stored identically in two
+        # files has one digest
+        try:
+            index = np.array([(*c.chunk_offset, c.filter_mask, c.size,
+                               -1 if c.byte_offset is None else c.byte_offset) for c in spots], dtype=np.int64)
+        except (OverflowError, ValueError, TypeError):
+            raise self.fail(ds.name, "cannot read stored chunks (truncated or corrupt?): its chunk index holds "
+                                     "impossible offsets") from None
+        sizes, places = index[:, rank + 1], index[:, rank + 2]
         try:
             fd = os.open(self.path, os.O_RDONLY)
             try:
                 size = os.fstat(fd).st_size
-                if any(c.byte_offset is None or c.byte_offset < 0 or c.byte_offset + c.size > size for c in spots):
+                if (places < 0).any() or (sizes < 0).any() or (places + sizes > size).any():
                     raise self.fail(ds.name, "cannot read stored chunks (truncated or corrupt?): a chunk lies past "
                                              "the end of the file")
-                lo = min(c.byte_offset for c in spots)
-                hi = max(c.byte_offset + c.size for c in spots)
-                total = sum(c.size for c in spots)
-                whole = os.pread(fd, hi - lo, lo) if hi - lo <= 2 * total + (64 << 10) else None
-                for c in spots:
-                    data = (memoryview(whole)[c.byte_offset - lo:c.byte_offset - lo + c.size] if whole is not None
-                            else os.pread(fd, c.size, c.byte_offset))
-                    if len(data) != c.size:
-                        raise self.fail(ds.name, "cannot read stored chunks: the file is shorter than its chunk "
-                                                 "index says (truncated?)")
-                    h.update(repr((c.chunk_offset, c.filter_mask, c.size)).encode())
-                    h.update(data)
+                h.update(index[:, :rank + 2].tobytes())
+                lo, hi, total = int(places.min()), int((places + sizes).max()), int(sizes.sum())
+                if (places[1:] == places[:-1] + sizes[:-1]).all():  # stored back to back in index order
+                    self._hash_range(h, fd, lo, hi - lo, ds.name)
+                else:
+                    whole = os.pread(fd, hi - lo, lo) if hi - lo <= 2 * total + (64 << 10) else None
+                    for place, n in zip(places.tolist(), sizes.tolist()):
+                        if whole is not None:
+                            data = memoryview(whole)[place - lo:place - lo + n]
+                        else:
+                            data = os.pread(fd, n, place)
+                        if len(data) != n:
+                            raise self._short(ds.name)
+                        h.update(data)
             finally:
                 os.close(fd)
         except OSError as exc:
             raise self.fail(ds.name, f"cannot read stored chunks: {exc.strerror or exc}") from None
         return h.digest()
+
+    def _hash_range(self, h, fd: int, start: int, length: int, name: str) -> None:
+        """Feed ``length`` bytes of the file from ``start`` to ``h``, in pieces of at most 4 MiB."""
+        step = 4 << 20
+        for at in range(start, start + length, step):
+            n = min(step, start + length - at)
+            data = os.pread(fd, n, at)
+            if len(data) != n:
+                raise self._short(name)
+            h.update(data)
+
+    def _short(self, name: str) -> TraceFormatError:
+        return self.fail(name, "cannot read stored chunks: the file is shorter than its chunk index says (truncated?)")
 
     def read_strings(self, ds) -> tuple[str, ...]:
         """The strings of ``ds``, each escaped and cut by :func:`printable` (they reach reports)."""
@@ -324,11 +397,13 @@ class SafeFile:
         return tuple(printable(v) for v in np.atleast_1d(vals))
 
     def attr(self, obj, key, default=None):
+        """Attribute ``key`` of h5py object ``obj`` as h5py's ``obj.attrs[key]`` gives it, or
+        ``default`` when it has none."""
         try:
-            attrs = obj.attrs  # h5py makes a new manager per access (~30 us): once per lookup
-            if key not in attrs:
+            b = _name(key)
+            if not h5py.h5a.exists(obj.id, b):
                 return default
-            return attrs[key]
+            return _attr_value(h5py.h5a.open(obj.id, b))
         except H5_FAILURES as exc:
             raise self.fail(f"{obj.name}@{key}", f"cannot read attribute: {exc}") from None
 
@@ -355,6 +430,42 @@ def _link(group, part: str):
     if group.id.links.get_info(b).type == _HARD:
         return _HARD_LINK
     return group.get(part, getlink=True)
+
+
+def _attr_value(attr):
+    """``AttributeManager.__getitem__`` of h5py 3 for an open attribute (same steps, without a
+    manager object per lookup): an empty dataspace gives ``h5py.Empty``, variable-length strings
+    come back as str, a scalar as a NumPy scalar."""
+    shape = attr.shape
+    if shape is None:
+        return h5py.Empty(attr.dtype)
+    dtype = attr.dtype
+    htype = h5py.h5t.py_create(dtype)
+    if dtype.subdtype is not None:  # a top-level array type: NumPy holds it as extra axes
+        dtype, sub = dtype.subdtype
+        shape = shape + sub
+    arr = np.zeros(shape, dtype=dtype, order="C")
+    attr.read(arr, mtype=htype)
+    info = h5py.h5t.check_string_dtype(dtype)
+    if info and info.length is None:
+        arr = np.array([b.decode("utf-8", "surrogateescape") for b in arr.flat], dtype=dtype).reshape(arr.shape)
+    return arr[()] if arr.ndim == 0 else arr
+
+
+#: Groups with more links than this are looked up name by name (a trace's groups hold a few).
+_TABLE_LINKS = 64
+
+
+def _link_table(group) -> dict | None:
+    """``{name (bytes): link type}`` of every link in ``group``, or None when it holds more than
+    :data:`_TABLE_LINKS` (the listing stops there: a hostile group may hold millions)."""
+    table: dict = {}
+
+    def take(name, info):
+        table[name] = info.type
+        return True if len(table) > _TABLE_LINKS else None  # h5py stops at a value that is not None
+    group.id.links.iterate(take, info=True)
+    return table if len(table) <= _TABLE_LINKS else None
 
 
 def _open_hard(group, part: str):

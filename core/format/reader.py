@@ -212,8 +212,10 @@ class Trace:
         if (origin % S).any():
             bad = int(np.argmax((origin % S).any(axis=1)))
             raise f.fail(od.name, f"row {bad} {origin[bad].tolist()} is not a multiple of chunk_size {S}")
-        if len(np.unique(origin, axis=0)) != C:
-            raise f.fail(od.name, "holds duplicate chunk origins")
+        if C > 1:  # sorted rows, neighbours compared (np.unique(axis=0) sorts row views, several times slower)
+            rows = origin[np.lexsort(origin.T[::-1])]
+            if (rows[1:] == rows[:-1]).all(axis=1).any():
+                raise f.fail(od.name, "holds duplicate chunk origins")
         ed = f.dataset("/world/edits", required=False)
         edits = self._read_edits(ed, origin, S) if ed is not None else np.zeros((0, 5), np.int64)
         blocks, top = self._read_blocks(bd)
@@ -384,7 +386,7 @@ class Trace:
         end = rd(self._ds["end"], rows)
         n = f1 - f0
         act = self._ds["active"]
-        active = rd(act, rows).astype(bool) if act is not None else np.ones((n, self.entity_count), bool)
+        active = self._f.read_flags(act, rows) if act is not None else np.ones((n, self.entity_count), bool)
         hov = self._ds["half"]
         if hov is not None:
             half = rd(hov, rows)
@@ -393,7 +395,7 @@ class Trace:
             half = np.broadcast_to(self.half_extents[None], (n, self.entity_count, 3))
         _motion_limit(self._f, self.limits, motion, self.voxel_size, active, f0, self.ids)
         gd = self._ds["grounded"]
-        grounded = (rd(gd, rows) != 0).astype(np.int8) if gd is not None else None
+        grounded = self._f.read_flags(gd, rows).astype(np.int8) if gd is not None else None
         return FrameBlock(f0, f1, start, motion, end, active, half, grounded)
 
     def block_frames(self, rows: int = 1 << 17) -> int:

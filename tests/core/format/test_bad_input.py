@@ -74,6 +74,9 @@ CASES = {
                            ["/world/chunk_blocks", "uint8 or uint16"]),
     "origin_not_multiple": (lambda f: _replace(f, "world/chunk_origin", f["world/chunk_origin"][...] + 1),
                             ["/world/chunk_origin", "multiple"]),
+    # rows 0 and 3 of the four chunk origins made equal (not neighbours in file order)
+    "duplicate_origin": (lambda f: _replace(f, "world/chunk_origin", f["world/chunk_origin"][...][[0, 1, 2, 0]]),
+                         ["/world/chunk_origin", "duplicate chunk origins"]),
     "external_link": (lambda f: (f.__delitem__("frames/motion"),
                                  f["frames"].__setitem__("motion", h5py.ExternalLink("other.h5", "/m"))),
                       ["/frames/motion", "external link"]),
