@@ -2,8 +2,8 @@
 
 :class:`~resweep.app.scene.viewport.Viewport` draws on any object with the few parts of a pyvista
 ``Plotter`` it uses (``renderer``, ``render_window``, ``camera``, ``add_mesh``, ``add_axes``,
-``set_background``, ``render``, ``screenshot``, ``reset_camera``, ``close``). The viewer hands it
-pyvistaqt's plotter; ``resweep snapshot`` hands it an :class:`OffscreenPlotter`, which sets up the
+``set_background``, ``render``, ``screenshot``, ``reset_camera``, ``close``). ``resweep snapshot``
+hands it an :class:`OffscreenPlotter` (the viewer a widget showing one), which sets up the
 render window, lights, actors and axes marker the way pyvista's plotter does for the calls the
 viewport makes (so the pixels are the same) but imports only the VTK modules a picture needs:
 pyvista's plotting package, with matplotlib and every VTK module it loads, is most of a warm
@@ -87,6 +87,10 @@ class OffscreenMesh(vtkPolyData):
     @property
     def n_points(self) -> int:
         return self.GetNumberOfPoints()
+
+    @property
+    def n_cells(self) -> int:
+        return self.GetNumberOfCells()
 
     @property
     def points(self) -> np.ndarray:
@@ -188,8 +192,10 @@ class OffscreenPlotter:
     #: The meshes this plotter draws (the viewport makes its meshes of this class).
     mesh_type = OffscreenMesh
 
-    def __init__(self, window_size=(1024, 768)):
-        self.render_window = rw = vtkRenderWindow()
+    def __init__(self, window_size=(1024, 768), render_window=None):
+        """``render_window``: a VTK render window of a class of the caller's choice (default:
+        VTK's default class for this platform)."""
+        self.render_window = rw = vtkRenderWindow() if render_window is None else render_window
         rw.SetMultiSamples(0)
         rw.SetBorders(True)
         self.renderer = ren = vtkRenderer()

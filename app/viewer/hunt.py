@@ -283,8 +283,8 @@ class HuntTools(QObject):
         return p
 
     def _draw_measure(self):
-        import pyvista as pv
-        line = pv.Line(self.picked[0], self.picked[1])
+        from resweep.app.scene.voxel_mesh import mesh_type
+        line = mesh_type(self.win.plotter)(np.array([self.picked[0], self.picked[1]], np.float64), lines=[2, 0, 1])
         if self._measure_actor is None:
             self._measure_actor = self.win.plotter.add_mesh(line, color=(0.1, 0.1, 0.12), line_width=3,
                                                             lighting=False, reset_camera=False)

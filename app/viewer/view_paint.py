@@ -17,7 +17,7 @@ SETTLE_MS = 200  # the full-quality paint waits this long after the last change 
 
 
 class ViewPaint(QObject):
-    """Schedules the paints of ``plotter`` (a pyvistaqt QtInteractor).
+    """Schedules the paints of ``plotter`` (a :class:`~resweep.app.viewer.raster_view.RasterView`).
 
     Attributes:
         draft: bool, the render window is in draft settings now.

@@ -10,7 +10,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
-from PyQt6.QtCore import QEvent, QObject, QSettings, Qt
+from PyQt6.QtCore import QSettings, Qt
 from PyQt6.QtGui import QAction, QColor, QGuiApplication, QImage, QKeySequence, QPalette
 from PyQt6.QtWidgets import (QApplication, QDialog, QDockWidget, QFileDialog, QHeaderView, QLabel, QMainWindow,
                              QMessageBox, QProgressBar, QPushButton, QTableWidget, QTableWidgetItem, QVBoxLayout,
@@ -99,21 +99,13 @@ class MainWindow(QMainWindow):
         lay.setSpacing(0)
         if with_viewport:
             from resweep.app.scene.viewport import ViewOptions, Viewport  # first: it defers pyplot
-            from pyvistaqt import QtInteractor
-            # No render timer: an idle software-GL view re-rendered 5 times a second burns a core
-            # the background re-solve needs; the window asks for a paint when the scene changes.
-            self.plotter = QtInteractor(centre, auto_update=False)
-            # A window of its own for the 3-D view: with a GL widget inside it, Qt would compose the
-            # whole main window through (software) GL on every paint of any widget, a strip or
-            # panel repaint costing a full-window composition; native, the rest paints as plain
-            # raster and only the view's own area goes through GL.
-            self.plotter.setAttribute(Qt.WidgetAttribute.WA_NativeWindow)
+            from resweep.app.viewer.raster_view import RasterView
+            # VTK renders off screen and the widget shows its picture as plain raster: a GL widget
+            # would have Qt compose it through (software) GL on every paint (raster_view.py).
+            # No render timer: the window asks for a paint when the scene changes.
+            self.plotter = RasterView(centre)
             self.plotter.setFocusPolicy(Qt.FocusPolicy.ClickFocus)
             self.view_paint = ViewPaint(self.plotter, parent=self)
-            # VTK's own letter keys (q/e quit, 3 stereo, s/w surface style...) would fight the
-            # window's shortcuts; the window's actions still see every key first.
-            self._key_guard = _SwallowKeys(self.plotter)
-            self.plotter.installEventFilter(self._key_guard)
             self.viewport = Viewport(self.plotter)
             self.viewport.enable_inset()
             self.view_options = ViewOptions()
@@ -595,13 +587,6 @@ class MainWindow(QMainWindow):
             self.view_paint.full()  # no full-quality paint pending on a closed view
             self.plotter.close()
         super().closeEvent(event)
-
-
-class _SwallowKeys(QObject):
-    """Event filter that keeps key presses away from the VTK interactor (mouse still works)."""
-
-    def eventFilter(self, obj, event):
-        return event.type() in (QEvent.Type.KeyPress, QEvent.Type.KeyRelease)
 
 
 def dropped_path(mime) -> str | None:

@@ -1,0 +1,196 @@
+"""The 3-D view as a plain raster widget: VTK renders off screen, the widget draws the picture.
+
+Why not a GL widget: on a machine without a GPU (Mesa's software GL), Qt composes a
+``QOpenGLWidget`` through GL on every paint, whatever changed: measured on the 2-core machine
+under Xvfb, repainting an empty 733 x 789 GL widget and a label beside it takes 21-34 ms, the same
+through a raster widget drawing a picture of that size 3.4-6 ms. Scrubbing repaints the view on
+every step, so that composition was about half of each step. Here VTK renders into its own
+off-screen window (:class:`~resweep.app.scene.offscreen.OffscreenPlotter`, the plotter
+``resweep snapshot`` uses, so the view and the pictures are drawn by the same code), the pixels are
+read back once per render, and Qt only copies them, as part of its ordinary raster paint.
+
+Mouse input drives the camera through VTK's own trackball-camera interactor style (rotate with
+the left button, pan with the middle button or shift+left, zoom with the right button or the
+wheel), as pyvista's plotters do by default.
+"""
+from __future__ import annotations
+
+import sys
+
+import numpy as np
+from PyQt6.QtCore import Qt
+from PyQt6.QtGui import QImage, QPainter
+from PyQt6.QtWidgets import QWidget
+
+from resweep.app.scene.offscreen import OffscreenPlotter
+
+_BUTTONS = {
+    Qt.MouseButton.LeftButton: "Left",
+    Qt.MouseButton.MiddleButton: "Middle",
+    Qt.MouseButton.RightButton: "Right",
+}
+
+
+def _offscreen_window():
+    """A render window of its own GL context, off any display where VTK can: on Linux an EGL
+    window (Mesa's or the GPU driver's), which holds no connection to the X server (an X one
+    would outlive the display in a test run's virtual X server); None elsewhere (VTK's default
+    off-screen window)."""
+    if sys.platform.startswith("linux"):
+        import vtkmodules.vtkRenderingOpenGL2 as gl
+        cls = getattr(gl, "vtkEGLRenderWindow", None)
+        if cls is not None:
+            return cls()
+    return None
+
+
+class RasterView(QWidget):
+    """A QWidget showing an off-screen VTK render window, with the plotter interface the
+    viewport uses (``renderer``, ``render_window``, ``camera``, ``add_mesh``, ``add_axes``,
+    ``set_background``, ``reset_camera``, ``render``, ``screenshot``, ``close``).
+
+    ``update()`` asks for a render at the next paint (paints asked for before the event loop
+    gets to them merge into one); ``render()`` renders now. ``image``: uint8 (H, W, 3), the
+    picture as last rendered, top row first. ``renders``: int, renders so far.
+    """
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        from vtkmodules.vtkInteractionStyle import vtkInteractorStyleTrackballCamera
+        from vtkmodules.vtkRenderingUI import vtkGenericRenderWindowInteractor
+        self._scene = OffscreenPlotter((max(1, self.width()), max(1, self.height())), _offscreen_window())
+        self.mesh_type = self._scene.mesh_type
+        self.renderer, self.camera = self._scene.renderer, self._scene.camera
+        self.render_window = self._scene.render_window
+        self.iren = vtkGenericRenderWindowInteractor()
+        self.iren.SetRenderWindow(self.render_window)
+        self.iren.SetInteractorStyle(vtkInteractorStyleTrackballCamera())
+        # The interactor asks for renders as the camera moves: they become paints of this widget
+        # (merged, and rendered when Qt paints) rather than renders inside each mouse event.
+        self.iren.EnableRenderOff()
+        self.iren.AddObserver("RenderEvent", lambda *_: self.update())
+        self.iren.Initialize()
+        self.image = np.zeros((1, 1, 3), np.uint8)
+        self._qimage = None
+        self._stale = True
+        self.renders = 0
+        self.setAttribute(Qt.WidgetAttribute.WA_OpaquePaintEvent)  # the picture covers the widget
+        self.setMouseTracking(False)
+        self.setMinimumSize(64, 64)
+
+    # -- the plotter interface the viewport uses -------------------------------------------------
+    def add_mesh(self, *args, **kw):
+        return self._scene.add_mesh(*args, **kw)
+
+    def add_axes(self, *args, **kw):
+        return self._scene.add_axes(*args, **kw)
+
+    def set_background(self, *args, **kw):
+        return self._scene.set_background(*args, **kw)
+
+    def reset_camera(self) -> None:
+        self._scene.reset_camera()
+
+    @property
+    def window_size(self) -> tuple[int, int]:
+        return tuple(self.render_window.GetSize()) if self.render_window is not None else (0, 0)
+
+    def update(self, *args) -> None:
+        """Render at the next paint (Qt's ``update``: asks merge into one paint)."""
+        self._stale = True
+        super().update(*args)
+
+    def render(self, *args) -> None:
+        """Render now (the picture is shown at the next paint)."""
+        if args:  # QWidget.render(target, ...): Qt's own meaning
+            return super().render(*args)
+        self._render_now()
+        super().update()
+
+    def screenshot(self, return_img: bool = True) -> np.ndarray:
+        """uint8 (H, W, 3) picture as last rendered (top row first)."""
+        return self.image.copy()
+
+    def close(self) -> bool:
+        if self.render_window is not None:
+            self.iren.RemoveAllObservers()
+            self._scene.close()
+            self.render_window = None
+        return super().close()
+
+    # -- painting -----------------------------------------------------------------------------
+    def _render_now(self) -> None:
+        rw = self.render_window
+        if rw is None:
+            return
+        w, h = self._pixels()
+        if tuple(rw.GetSize()) != (w, h):
+            rw.SetSize(w, h)
+            self.iren.UpdateSize(w, h)
+        rw.Render()
+        self.renders += 1
+        self.image = self._scene.screenshot()
+        ih, iw = self.image.shape[:2]
+        self._qimage = QImage(self.image.data, iw, ih, 3 * iw, QImage.Format.Format_RGB888)
+        self._qimage.setDevicePixelRatio(self.devicePixelRatioF())
+        self._stale = False
+
+    def _pixels(self) -> tuple[int, int]:
+        r = self.devicePixelRatioF()
+        return max(1, round(self.width() * r)), max(1, round(self.height() * r))
+
+    def paintEvent(self, event) -> None:
+        if self._stale or self._qimage is None:
+            self._render_now()
+        p = QPainter(self)
+        if self._qimage is not None:
+            p.drawImage(0, 0, self._qimage)
+        p.end()
+
+    def resizeEvent(self, event) -> None:
+        self._stale = True
+        super().resizeEvent(event)
+
+    # -- mouse input -> VTK's interactor style --------------------------------------------------
+    def _tell(self, event, repeat: int = 0) -> None:
+        r = self.devicePixelRatioF()
+        pos = event.position()
+        mods = event.modifiers()
+        w, h = self._pixels()
+        if tuple(self.render_window.GetSize()) != (w, h):
+            self.render_window.SetSize(w, h)
+            self.iren.UpdateSize(w, h)
+        self.iren.SetEventInformationFlipY(int(pos.x() * r), int(pos.y() * r),
+                                           int(bool(mods & Qt.KeyboardModifier.ControlModifier)),
+                                           int(bool(mods & Qt.KeyboardModifier.ShiftModifier)),
+                                           chr(0), repeat, None)
+
+    def mousePressEvent(self, event) -> None:
+        name = _BUTTONS.get(event.button())
+        if name is None or self.render_window is None:
+            return super().mousePressEvent(event)
+        self._tell(event)
+        getattr(self.iren, f"{name}ButtonPressEvent")()
+
+    def mouseReleaseEvent(self, event) -> None:
+        name = _BUTTONS.get(event.button())
+        if name is None or self.render_window is None:
+            return super().mouseReleaseEvent(event)
+        self._tell(event)
+        getattr(self.iren, f"{name}ButtonReleaseEvent")()
+
+    def mouseMoveEvent(self, event) -> None:
+        if self.render_window is None:
+            return
+        self._tell(event)
+        self.iren.MouseMoveEvent()
+
+    def wheelEvent(self, event) -> None:
+        if self.render_window is None:
+            return
+        self._tell(event)
+        dy = event.angleDelta().y()
+        if dy > 0:
+            self.iren.MouseWheelForwardEvent()
+        elif dy < 0:
+            self.iren.MouseWheelBackwardEvent()

@@ -1,0 +1,104 @@
+"""The 3-D view as a raster widget (app/viewer/raster_view.py): it shows what VTK rendered, and the
+mouse moves the camera.
+
+References: the render window's own pixels, read back by VTK (``vtkWindowToImageFilter``), for
+what Qt shows (Qt's ``grab`` of the widget); for the camera, the geometry of VTK's trackball-camera
+style (common practice in 3-D viewers): a left-button drag turns the camera about its focal point,
+keeping its distance to it; the wheel moves it along its line of sight, towards the focal point
+when turned forward.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from PyQt6.QtCore import QEvent, QPoint, QPointF, Qt
+from PyQt6.QtGui import QImage, QMouseEvent, QWheelEvent
+from PyQt6.QtWidgets import QApplication
+
+pytestmark = pytest.mark.gui
+
+
+def _shown(widget) -> np.ndarray:
+    """uint8 (H, W, 3): what Qt draws for ``widget``."""
+    img = widget.grab().toImage().convertToFormat(QImage.Format.Format_RGB888)
+    h, w, stride = img.height(), img.width(), img.bytesPerLine()
+    return np.frombuffer(img.constBits().asstring(h * stride), np.uint8).reshape(h, stride)[:, :w * 3].reshape(h, w, 3)
+
+
+def _settled(qtbot, win):
+    qtbot.waitUntil(lambda: not win.view_paint.draft, timeout=5000)
+    qtbot.wait(50)
+
+
+def _camera(win):
+    cam = win.plotter.renderer.GetActiveCamera()
+    return np.array(cam.GetPosition()), np.array(cam.GetFocalPoint())
+
+
+def _mouse(widget, kind, x, y, button=Qt.MouseButton.NoButton, buttons=Qt.MouseButton.NoButton):
+    pos = QPointF(x, y)
+    ev = QMouseEvent(kind, pos, QPointF(widget.mapToGlobal(QPoint(x, y))), button, buttons,
+                     Qt.KeyboardModifier.NoModifier)
+    QApplication.sendEvent(widget, ev)
+
+
+def test_the_widget_shows_exactly_what_vtk_rendered(qtbot, demo_window):
+    win = demo_window
+    _settled(qtbot, win)
+    view = win.plotter
+    from vtkmodules.util.numpy_support import vtk_to_numpy
+    from vtkmodules.vtkRenderingCore import vtkWindowToImageFilter
+    f = vtkWindowToImageFilter()
+    f.SetInput(view.render_window)
+    f.ShouldRerenderOff()
+    f.SetInputBufferTypeToRGB()
+    f.ReadFrontBufferOn()
+    f.Update()
+    out = f.GetOutput()
+    w, h, _ = out.GetDimensions()
+    vtk_pixels = vtk_to_numpy(out.GetPointData().GetScalars()).reshape(h, w, 3)[::-1]
+    shown = _shown(view)
+    assert shown.shape == vtk_pixels.shape == (view.height(), view.width(), 3)
+    depth = view.screen().depth()
+    if depth < 24:  # a 16-bit screen (the test X server's default) keeps 5, 6, 5 bits of r, g, b
+        keep = np.array([5, 6, 5]) if depth == 16 else np.array([8, 8, 8])
+        shown, vtk_pixels = (a.astype(np.int16) >> (8 - keep) for a in (shown, vtk_pixels))
+    assert np.array_equal(shown, vtk_pixels)
+    assert len(np.unique(shown.reshape(-1, 3), axis=0)) > 50  # a scene, not a blank widget
+
+
+def test_left_drag_turns_the_camera_about_its_focal_point(qtbot, demo_window):
+    win = demo_window
+    _settled(qtbot, win)
+    view = win.plotter
+    before = _shown(view)
+    p0, f0 = _camera(win)
+    cx, cy = view.width() // 2, view.height() // 2
+    left = Qt.MouseButton.LeftButton
+    _mouse(view, QEvent.Type.MouseButtonPress, cx, cy, left, left)
+    for k in range(1, 6):
+        _mouse(view, QEvent.Type.MouseMove, cx + 12 * k, cy + 4 * k, buttons=left)
+    _mouse(view, QEvent.Type.MouseButtonRelease, cx + 60, cy + 20, left)
+    _settled(qtbot, win)
+    p1, f1 = _camera(win)
+    assert np.allclose(f1, f0)  # the focal point stays
+    assert not np.allclose(p1, p0)  # the camera moved
+    assert np.isclose(np.linalg.norm(p1 - f1), np.linalg.norm(p0 - f0), rtol=1e-9)  # on a sphere about it
+    assert not np.array_equal(_shown(view), before)  # and the picture shows it
+
+
+def test_wheel_forward_moves_the_camera_towards_its_focal_point(qtbot, demo_window):
+    win = demo_window
+    _settled(qtbot, win)
+    view = win.plotter
+    p0, f0 = _camera(win)
+    at = QPointF(view.width() / 2, view.height() / 2)
+    ev = QWheelEvent(at, QPointF(view.mapToGlobal(at.toPoint())), QPoint(0, 0), QPoint(0, 120),
+                     Qt.MouseButton.NoButton, Qt.KeyboardModifier.NoModifier, Qt.ScrollPhase.NoScrollPhase, False)
+    QApplication.sendEvent(view, ev)
+    _settled(qtbot, win)
+    p1, f1 = _camera(win)
+    assert np.allclose(f1, f0)
+    d0, d1 = p0 - f0, p1 - f1
+    assert np.linalg.norm(d1) < np.linalg.norm(d0)  # closer
+    assert np.allclose(np.cross(d0, d1), 0, atol=1e-9 * np.linalg.norm(d0) ** 2)  # along the line of sight
