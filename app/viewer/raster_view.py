@@ -166,18 +166,21 @@ class RasterView(QWidget):
                                            chr(0), repeat, None)
 
     def mousePressEvent(self, event) -> None:
-        name = _BUTTONS.get(event.button())
-        if name is None or self.render_window is None:
-            return super().mousePressEvent(event)
-        self._tell(event)
-        getattr(self.iren, f"{name}ButtonPressEvent")()
+        if not self._button(event, "Press"):
+            super().mousePressEvent(event)
 
     def mouseReleaseEvent(self, event) -> None:
+        if not self._button(event, "Release"):
+            super().mouseReleaseEvent(event)
+
+    def _button(self, event, what: str) -> bool:
+        """Hand a press or release of a button VTK's style uses to the interactor; False for others."""
         name = _BUTTONS.get(event.button())
         if name is None or self.render_window is None:
-            return super().mouseReleaseEvent(event)
+            return False
         self._tell(event)
-        getattr(self.iren, f"{name}ButtonReleaseEvent")()
+        getattr(self.iren, f"{name}Button{what}Event")()
+        return True
 
     def mouseMoveEvent(self, event) -> None:
         if self.render_window is None:
