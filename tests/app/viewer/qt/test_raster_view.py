@@ -51,7 +51,7 @@ def test_the_widget_shows_exactly_what_vtk_rendered(qtbot, demo_window):
     rw = view.render_window
     w, h = rw.GetSize()
     got = vtkUnsignedCharArray()
-    rw.GetPixelData(0, 0, w - 1, h - 1, 1, got)  # the front buffer, bottom row first
+    rw.GetPixelData(0, 0, w - 1, h - 1, 1, got, 0)  # the front buffer, bottom row first
     vtk_pixels = vtk_to_numpy(got).reshape(h, w, 3)[::-1]
     shown = _shown(view)
     assert shown.shape == vtk_pixels.shape == (view.height(), view.width(), 3)
