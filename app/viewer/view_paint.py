@@ -1,8 +1,10 @@
 """Paints of the 3-D view while frames change fast: drafts, then one full-quality paint.
 
 On a software-GL machine (Mesa llvmpipe) a render of the view with multisampling and
-order-independent translucency costs several times one without. A change of frame (scrubbing,
-playing, stepping) is painted as a draft, without either; ``SETTLE_MS`` after the last draft
+order-independent translucency costs several times one without, and a gradient background alone
+costs about 6 ms of a 14 ms draft (measured: the empty view at 733 x 789, 8.4 ms with the
+gradient, 2.2 ms with one colour). A change of frame (scrubbing, playing, stepping) is painted as
+a draft, without either and on one colour (the gradient's middle); ``SETTLE_MS`` after the last draft
 is on screen (and no other change came) one more paint comes at full quality, so the picture
 that stays on screen, and every saved picture (:meth:`ViewPaint.full`), is the full one. Other changes (camera, focus, settings) paint
 at full quality at once. Paints asked for before the event loop gets to them merge into one (Qt's
@@ -32,7 +34,7 @@ class ViewPaint(QObject):
         self.full_samples = None
         self.draft = False
         self.drafts = self.fulls = 0
-        self._oit: list = []  # (renderer, its own UseOIT) while drafting
+        self._oit: list = []  # (renderer, its own UseOIT, gradient on, background) while drafting
         self._timer = QTimer(self)
         self._timer.setSingleShot(True)
         self._timer.setInterval(settle_ms)
@@ -81,10 +83,18 @@ class ViewPaint(QObject):
         if on:
             rens = rw.GetRenderers()
             rens.InitTraversal()
-            self._oit = [(r, r.GetUseOIT()) for r in (rens.GetNextItem() for _ in range(rens.GetNumberOfItems()))]
-            for r, _ in self._oit:
+            self._oit = [(r, r.GetUseOIT(), bool(r.GetGradientBackground()), r.GetBackground())
+                         for r in (rens.GetNextItem() for _ in range(rens.GetNumberOfItems()))]
+            for r, _, gradient, bottom in self._oit:
                 r.UseOITOff()  # translucent parts blend unsorted: fine for a passing frame
+                if gradient:  # one colour, the gradient's middle: a gradient costs a shaded full-view quad
+                    top = r.GetBackground2()
+                    r.GradientBackgroundOff()
+                    r.SetBackground(*((a + b) / 2 for a, b in zip(bottom, top)))
         else:
-            for r, use in self._oit:
+            for r, use, gradient, bottom in self._oit:
                 r.SetUseOIT(use)
+                if gradient:
+                    r.SetBackground(*bottom)
+                    r.GradientBackgroundOn()
             self._oit = []

@@ -34,17 +34,27 @@ def test_scrub_paints_drafts_then_the_full_picture_of_the_last_frame(qtbot, demo
     qtbot.waitUntil(lambda: not vp.draft, timeout=5000)
     samples = rw.GetMultiSamples()
     assert samples > 0  # the full picture is multisampled
+    main = win.plotter.renderer
+    bottom, top = main.GetBackground(), main.GetBackground2()
+    assert main.GetGradientBackground() and bottom != top  # the full picture's background is a gradient
     renders = _counter(win)
     for f in (10, 20, 30, 45):
         seen = renders[0]
         win.pb.set_frame(f)
         qtbot.waitUntil(lambda: renders[0] > seen, timeout=10_000)  # each step is painted
         assert vp.draft and rw.GetMultiSamples() == 0
+        # drafts: one colour, the gradient's middle
+        assert not main.GetGradientBackground()
+        assert np.allclose(main.GetBackground(), (np.array(bottom) + np.array(top)) / 2)
     draft = _on_screen(win)
+    mid = (np.array(bottom) + np.array(top)) / 2 * 255
+    assert np.abs(draft[2, 2] - mid).max() <= 2  # the top-left corner (sky) in the draft's one colour
     seen = renders[0]
     qtbot.waitUntil(lambda: not vp.draft and renders[0] > seen, timeout=10_000)  # the settle paint
     shown = _on_screen(win)
     assert win.state.frame == 45 and rw.GetMultiSamples() == samples
+    assert main.GetGradientBackground() and main.GetBackground() == bottom and main.GetBackground2() == top
+    assert np.abs(shown[2, 2] - np.array(top) * 255).max() <= 3  # the gradient is back: its top colour there
     vp.full()
     win.plotter.render()
     full = _on_screen(win)
