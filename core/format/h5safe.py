@@ -314,8 +314,9 @@ class SafeFile:
         The chunks' places come from HDF5's chunk index; their bytes are read from the file
         directly (a chunk-by-chunk read through HDF5 costs more than the rest of a small trace's
         open): hashed in one pass when they lie back to back in index order, as a writer leaves
-        them, else read in one ``pread`` when they lie close together, else one by one. A chunk that reaches past the end of the
-        file is refused, as HDF5's own read would.
+        them, else read in one ``pread`` when they lie close together, else one by one. A chunk
+        that reaches past the end of the file is refused, as HDF5's own read would (places and
+        sizes are each checked against the file size first, so their sum cannot overflow).
         """
         import hashlib
         h = hashlib.blake2b(digest_size=20)
@@ -348,7 +349,8 @@ class SafeFile:
             fd = os.open(self.path, os.O_RDONLY)
             try:
                 size = os.fstat(fd).st_size
-                if (places < 0).any() or (sizes < 0).any() or (places + sizes > size).any():
+                bad = (places < 0) | (sizes < 0) | (places > size) | (sizes > size)
+                if bad.any() or (places + sizes > size).any():
                     raise self.fail(ds.name, "cannot read stored chunks (truncated or corrupt?): a chunk lies past "
                                              "the end of the file")
                 h.update(index[:, :rank + 2].tobytes())
