@@ -1,11 +1,12 @@
 """The 3-D view as a raster widget (app/viewer/raster_view.py): it shows what VTK rendered, and the
 mouse moves the camera.
 
-References: the render window's own pixels, read back by VTK's ``GetPixelData``, for
-what Qt shows (Qt's ``grab`` of the widget); for the camera, the geometry of VTK's trackball-camera
-style (common practice in 3-D viewers): a left-button drag turns the camera about its focal point,
-keeping its distance to it; the wheel moves it along its line of sight, towards the focal point
-when turned forward.
+References: for what Qt shows (Qt's ``grab`` of the widget), the render window's own pixels read
+back through ``vtkWindowToImageFilter`` (the snapshot's path, held equal to pyvista's pictures in
+``tests/app/scene/test_offscreen.py``; the widget reads them another way). For the camera, the
+geometry of VTK's trackball-camera style (common practice in 3-D viewers): a left-button drag turns
+the camera about its focal point, keeping its distance to it; the wheel moves it along its line of
+sight, towards the focal point when turned forward.
 """
 from __future__ import annotations
 
@@ -46,13 +47,7 @@ def test_the_widget_shows_exactly_what_vtk_rendered(qtbot, demo_window):
     win = demo_window
     _settled(qtbot, win)
     view = win.plotter
-    from vtkmodules.util.numpy_support import vtk_to_numpy
-    from vtkmodules.vtkCommonCore import vtkUnsignedCharArray
-    rw = view.render_window
-    w, h = rw.GetSize()
-    got = vtkUnsignedCharArray()
-    rw.GetPixelData(0, 0, w - 1, h - 1, 1, got, 0)  # the front buffer, bottom row first
-    vtk_pixels = vtk_to_numpy(got).reshape(h, w, 3)[::-1]
+    vtk_pixels = view._scene.screenshot()  # vtkWindowToImageFilter: not the widget's own read-back
     shown = _shown(view)
     assert shown.shape == vtk_pixels.shape == (view.height(), view.width(), 3)
     depth = view.screen().depth()
