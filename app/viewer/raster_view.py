@@ -81,7 +81,6 @@ class RasterView(QWidget):
         self._stale = True
         self.renders = 0
         self.setAttribute(Qt.WidgetAttribute.WA_OpaquePaintEvent)  # the picture covers the widget
-        self.setMouseTracking(False)
         self.setMinimumSize(64, 64)
 
     # -- the plotter interface the viewport uses -------------------------------------------------
@@ -96,10 +95,6 @@ class RasterView(QWidget):
 
     def reset_camera(self) -> None:
         self._scene.reset_camera()
-
-    @property
-    def window_size(self) -> tuple[int, int]:
-        return tuple(self.render_window.GetSize()) if self.render_window is not None else (0, 0)
 
     def update(self, *args) -> None:
         """Render at the next paint (Qt's ``update``: asks merge into one paint)."""
@@ -129,24 +124,26 @@ class RasterView(QWidget):
         rw = self.render_window
         if rw is None:
             return
-        w, h = self._pixels()
-        if tuple(rw.GetSize()) != (w, h):
-            rw.SetSize(w, h)
-            self.iren.UpdateSize(w, h)
+        w, h = self._fit_size()
         rw.Render()
         self.renders += 1
         # The front buffer straight into a kept array: 1.0 ms at 733 x 789, against 3.7 ms
         # through vtkWindowToImageFilter (the snapshot's path), the same pixels.
         rw.GetPixelData(0, 0, w - 1, h - 1, 1, self._pixels_buf, 0)
         self.image = np.ascontiguousarray(vtk_to_numpy(self._pixels_buf).reshape(h, w, 3)[::-1])
-        ih, iw = self.image.shape[:2]
-        self._qimage = QImage(self.image.data, iw, ih, 3 * iw, QImage.Format.Format_RGB888)
+        self._qimage = QImage(self.image.data, w, h, 3 * w, QImage.Format.Format_RGB888)
         self._qimage.setDevicePixelRatio(self.devicePixelRatioF())
         self._stale = False
 
-    def _pixels(self) -> tuple[int, int]:
+    def _fit_size(self) -> tuple[int, int]:
+        """Size the render window (and the interactor's idea of it) to the widget in device
+        pixels; returns (W, H)."""
         r = self.devicePixelRatioF()
-        return max(1, round(self.width() * r)), max(1, round(self.height() * r))
+        w, h = max(1, round(self.width() * r)), max(1, round(self.height() * r))
+        if tuple(self.render_window.GetSize()) != (w, h):
+            self.render_window.SetSize(w, h)
+            self.iren.UpdateSize(w, h)
+        return w, h
 
     def paintEvent(self, event) -> None:
         if self._stale or self._qimage is None:
@@ -165,10 +162,7 @@ class RasterView(QWidget):
         r = self.devicePixelRatioF()
         pos = event.position()
         mods = event.modifiers()
-        w, h = self._pixels()
-        if tuple(self.render_window.GetSize()) != (w, h):
-            self.render_window.SetSize(w, h)
-            self.iren.UpdateSize(w, h)
+        self._fit_size()  # the y flip uses the window's height
         self.iren.SetEventInformationFlipY(int(pos.x() * r), int(pos.y() * r),
                                            int(bool(mods & Qt.KeyboardModifier.ControlModifier)),
                                            int(bool(mods & Qt.KeyboardModifier.ShiftModifier)),

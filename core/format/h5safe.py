@@ -286,7 +286,7 @@ class SafeFile:
         try:
             ftype = ds.id.get_type()
             shape = ds.shape
-            if ftype.get_size() != 1 or shape is None:
+            if ftype.get_size() != 1 or not shape:  # not one-byte, or no axes: h5py's own read
                 return self.read(ds, sel) != 0
             sel = sel if isinstance(sel, tuple) else (sel,)
             if len(sel) > len(shape) or any(not isinstance(s, slice) or s.step not in (None, 1) for s in sel):
@@ -296,9 +296,8 @@ class SafeFile:
             raw = np.empty(count, np.uint8)
             if raw.size:
                 fspace = ds.id.get_space()
-                if shape:
-                    fspace.select_hyperslab(tuple(a for a, _ in box), count)
-                ds.id.read(h5py.h5s.create_simple(count) if shape else h5py.h5s.ALL, fspace, raw, mtype=ftype)
+                fspace.select_hyperslab(tuple(a for a, _ in box), count)
+                ds.id.read(h5py.h5s.create_simple(count), fspace, raw, mtype=ftype)
         except TraceFormatError:
             raise
         except H5_FAILURES as exc:
