@@ -130,21 +130,42 @@ def primary_kind(kinds) -> str | None:
 def solid_boxes(world, lo, hi) -> np.ndarray:
     """float64 (m, 6) world boxes [lo, hi] of the solid block shapes in voxels touching the world
     region [lo, hi] (float (3,), world units), as the world stands now; at most MAX_CELLS cells."""
+    return solid_boxes_any(world, [(lo, hi)])
+
+
+def solid_boxes_any(world, regions) -> np.ndarray:
+    """:func:`solid_boxes` of the voxels touching any of ``regions`` (list of (lo, hi), float (3,)
+    world units), each voxel's boxes once: every chunk is scanned once over the regions' union,
+    masked to the regions (a region over 64 * MAX_CELLS voxels contributes nothing)."""
     vs = world.voxel_size
     S = world.chunk_size
-    vlo = np.floor(np.asarray(lo, np.float64) / vs).astype(np.int64) - 1
-    vhi = np.floor(np.asarray(hi, np.float64) / vs).astype(np.int64) + 1
-    if np.prod(np.maximum(vhi - vlo + 1, 0).astype(np.float64)) > 64 * MAX_CELLS:
+    ranges = []
+    for lo, hi in regions:
+        vlo = np.floor(np.asarray(lo, np.float64) / vs).astype(np.int64) - 1
+        vhi = np.floor(np.asarray(hi, np.float64) / vs).astype(np.int64) + 1
+        if np.prod(np.maximum(vhi - vlo + 1, 0).astype(np.float64)) <= 64 * MAX_CELLS:
+            ranges.append((vlo, vhi))
+    if not ranges:
         return np.zeros((0, 6))
+    ulo = np.min([r[0] for r in ranges], axis=0)
+    uhi = np.max([r[1] for r in ranges], axis=0)
     out: list = []
     origin = world.chunk_origin
-    hit = np.flatnonzero(((origin + S) > vlo).all(axis=1) & (origin <= vhi).all(axis=1))
+    hit = np.flatnonzero(((origin + S) > ulo).all(axis=1) & (origin <= uhi).all(axis=1))
     shapes = world.shapes
     for c in hit:
         o = origin[c]
-        a = np.maximum(vlo - o, 0)
-        b = np.minimum(vhi - o + 1, S)
+        a = np.maximum(ulo - o, 0)
+        b = np.minimum(uhi - o + 1, S)
         sub = world.blocks[c, a[0]:b[0], a[1]:b[1], a[2]:b[2]]
+        if len(ranges) > 1:  # only the voxels inside some region (the union's box has more)
+            inside = np.zeros(sub.shape, bool)
+            for vlo, vhi in ranges:
+                ra = np.maximum(vlo - o - a, 0)
+                rb = np.minimum(vhi - o + 1 - a, b - a)
+                if (rb > ra).all():
+                    inside[ra[0]:rb[0], ra[1]:rb[1], ra[2]:rb[2]] = True
+            sub = np.where(inside, sub, 0)
         for t in np.unique(sub):
             if t == 0:
                 continue
@@ -237,8 +258,7 @@ def tell_story(session, state, col: int) -> Story | None:
     story.targets = np.concatenate(tg)
     # Occluders that matter are near the key points: look 8 voxels around each (fast for far pairs).
     # Read now: the world moves on with the session, the direction is chosen later.
-    near = [solid_boxes(world, c - half - 8 * vs, c + half + 8 * vs) for c in centres]
-    view_solid = np.unique(np.concatenate(near), axis=0) if near else np.zeros((0, 6))
+    view_solid = solid_boxes_any(world, [(c - half - 8 * vs, c + half + 8 * vs) for c in centres])
     motion, up = _motion(state, col).copy(), "xyz".index(session.trace.up_axis)
 
     def view():
@@ -266,7 +286,7 @@ def _hit_points(rows, col) -> list:
 def _previous_end(session, frame: int, col: int):
     if frame <= 0:
         return None
-    blk = session.trace.frames(frame - 1, frame)
+    blk = session.frames(frame - 1, frame)
     if not bool(blk.active[0, col]):
         return None
     e = np.asarray(blk.end[0, col], np.float64)

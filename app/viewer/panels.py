@@ -11,7 +11,7 @@ import html
 import numpy as np
 
 from PyQt6.QtCore import Qt, QTimer
-from PyQt6.QtGui import QBrush, QColor
+from PyQt6.QtGui import QBrush, QColor, QTextCursor
 from PyQt6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QHeaderView,
                              QLabel, QPushButton, QSpinBox, QTableWidget, QTableWidgetItem, QTextBrowser,
                              QVBoxLayout, QWidget)
@@ -213,13 +213,20 @@ class FramePanel(QTextBrowser):
         self.setOpenLinks(False)
         self.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse
                                      | Qt.TextInteractionFlag.TextSelectableByKeyboard)
+        self.document().setUndoRedoEnabled(False)  # replaced on every frame: no history to keep
         self.facts: FrameFacts | None = None
-        self.show_facts(None)
+        self.setHtml(facts_html(None))
 
     def show_facts(self, facts: FrameFacts | None, note: str = "", legend=()):
         """``legend``: (label, rgb 0..255) of what the viewport draws, shown under the numbers."""
         self.facts = facts
-        self.setHtml(facts_html(facts, note) + legend_html(legend))
+        # Replaced in one edit block: setHtml first empties the document, so on every frame step
+        # the scroll bars hid and showed again and the window laid itself out anew (2 ms a step).
+        c = QTextCursor(self.document())
+        c.beginEditBlock()
+        c.select(QTextCursor.SelectionType.Document)
+        c.insertHtml(facts_html(facts, note) + legend_html(legend))
+        c.endEditBlock()
 
 
 def legend_html(legend) -> str:

@@ -359,7 +359,10 @@ class Timeline(QWidget):
                                     [("every kind", None)] + [(k, k) for k in KINDS])
         self.position = QLabel("–", self)
         self.position.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
-        self.position.setMinimumWidth(230)
+        # A fixed size (set per trace in _show_position): a label whose size can change makes every
+        # new frame number lay the window out anew.
+        self.position.setFixedSize(230, self.position.sizeHint().height())
+        self._position_for = None
         self._lay_out()
         self._connect()
         self.rate_box.setCurrentIndex(RATES.index(1.0))
@@ -495,4 +498,13 @@ class Timeline(QWidget):
             self.position.setText("–")
             return
         f = self.pb.frame
-        self.position.setText(f"frame {f} / {len(t) - 1}    t = {t[f]:.4f} s")
+        text = "frame {} / {}    t = {:.4f} s"
+        n = len(t) - 1
+        if self._position_for != (n, t[0], t[-1]):  # wide enough for this trace's longest text
+            self._position_for = (n, t[0], t[-1])
+            lo, hi = float(np.nanmin(t)), float(np.nanmax(t))
+            widest = max((text.format(n, n, v) for v in (lo, hi) if np.isfinite(v)), key=len, default="")
+            digits = "".join("8" if ch.isdigit() else ch for ch in widest)
+            fm = self.position.fontMetrics()
+            self.position.setFixedWidth(max(230, fm.horizontalAdvance(digits) + 8))
+        self.position.setText(text.format(f, n, t[f]))

@@ -12,10 +12,12 @@ import numpy as np
 from resweep.core.check.kinds import BY_NAME, DISCONTINUITY, kinds_of
 from resweep.core.errors import ResweepError
 from resweep.core.check.rows import RowResults, solve_rows
-from resweep.core.format.reader import Trace, open_trace
+from resweep.core.format.reader import FrameBlock, Trace, open_trace
 from resweep.core.solve.settings import SolverSettings
 
 CACHE_FRAMES = 32  # frame states kept; a scrub back and forth over a second of 60 Hz play stays warm
+WINDOW_ROWS = 1 << 16  # entity-frames per cached window of decoded frames (about 3 MiB in float32)
+CACHE_WINDOWS = 4  # windows kept: a scrub, the trail behind it and a jump back stay decoded
 
 
 class ViewRequestError(ResweepError):
@@ -77,6 +79,12 @@ class TraceSession:
         self.settings = settings
         self.world = self.trace.world()
         self._cache: OrderedDict[int, FrameState] = OrderedDict()
+        self._windows: OrderedDict[int, FrameBlock] = OrderedDict()
+        chunks = self.trace.frame_chunks
+        rows = chunks[0] if chunks else 0
+        # whole storage chunks when they are of a sensible size: each one is decompressed once
+        fit = max(1, WINDOW_ROWS // max(1, self.trace.entity_count))
+        self._window = rows if 0 < rows <= 4 * fit else fit
 
     @property
     def name(self) -> str:
@@ -128,7 +136,7 @@ class TraceSession:
     def _solve(self, frame: int) -> FrameState:
         tr = self.trace
         f0 = max(0, frame - 1)
-        blk = tr.frames(f0, frame + 1)
+        blk = self.frames(f0, frame + 1)
         i = frame - f0
         active = np.asarray(blk.active[i], bool)
         arr = {}
@@ -161,13 +169,42 @@ class TraceSession:
         return FrameState(frame, float(tr.time[frame]), active, arr["start"], arr["motion"], arr["end"],
                           arr["half"], rows, self.world.version)
 
+    def frames(self, f0: int, f1: int) -> FrameBlock:
+        """``trace.frames(f0, f1)`` (limits checked on these frames only) from decoded windows of
+        whole frames kept between calls: stepping and scrubbing read a few frames at a time, and
+        HDF5's cost per read (selection, chunk look-up) is several times the copy."""
+        W = self._window
+        f0 = max(0, int(f0))
+        f1 = max(f0, min(self.trace.frame_count, int(f1)))
+        if f1 - f0 > W or f1 == f0:
+            return self.trace.frames(f0, f1)
+        a, b = f0 // W, (f1 - 1) // W
+        parts = [self._decoded(k) for k in range(a, b + 1)]
+        blk = _cut(parts, f0, f1)
+        self.trace.check_limits(blk)
+        return blk
+
+    def _decoded(self, k: int) -> FrameBlock:
+        got = self._windows.get(k)
+        if got is not None:
+            self._windows.move_to_end(k)
+            return got
+        got = self.trace.frames(k * self._window, (k + 1) * self._window, check=False)
+        for a in (got.start, got.motion, got.end, got.active, got.half, got.grounded):
+            if a is not None and a.flags.writeable:
+                a.flags.writeable = False  # shared by every later call: a caller's write would spread
+        self._windows[k] = got
+        while len(self._windows) > CACHE_WINDOWS:
+            self._windows.popitem(last=False)
+        return got
+
     def trail(self, frame: int, col: int, count: int) -> np.ndarray:
         """float64 (k, 3) recorded start centres of the up to ``count`` frames before ``frame``
         where column ``col`` is active, oldest first, world units."""
         frame = self.check_frame(frame)
         if count <= 0 or frame == 0:
             return np.zeros((0, 3))
-        blk = self.trace.frames(max(0, frame - int(count)), frame)
+        blk = self.frames(max(0, frame - int(count)), frame)
         pts = np.asarray(blk.start[:, col], np.float64)
         keep = np.asarray(blk.active[:, col], bool) & np.isfinite(pts).all(axis=1)
         return pts[keep]
@@ -201,3 +238,14 @@ class TraceSession:
 
     def __exit__(self, *exc):
         self.close()
+
+
+def _cut(parts: list[FrameBlock], f0: int, f1: int) -> FrameBlock:
+    """Frames ``[f0, f1)`` of consecutive blocks ``parts`` (views when one block holds them)."""
+    def field(name):
+        arrs = [getattr(p, name) for p in parts]
+        if arrs[0] is None:
+            return None
+        whole = arrs[0] if len(arrs) == 1 else np.concatenate(arrs)
+        return whole[f0 - parts[0].f0:f1 - parts[0].f0]
+    return FrameBlock(f0, f1, *(field(n) for n in ("start", "motion", "end", "active", "half", "grounded")))

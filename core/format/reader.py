@@ -373,8 +373,9 @@ class Trace:
             h.update(part)
         return h.digest()
 
-    def frames(self, f0: int, f1: int) -> FrameBlock:
-        """Frames ``[f0, f1)`` (clamped to the trace)."""
+    def frames(self, f0: int, f1: int, check: bool = True) -> FrameBlock:
+        """Frames ``[f0, f1)`` (clamped to the trace). ``check=False`` skips the limits on motion and
+        half extents (:meth:`check_limits`), for a caller that checks the part it uses."""
         f0 = max(0, int(f0))
         f1 = min(self.frame_count, int(f1))
         f1 = max(f0, f1)
@@ -388,15 +389,26 @@ class Trace:
         act = self._ds["active"]
         active = self._f.read_flags(act, rows) if act is not None else np.ones((n, self.entity_count), bool)
         hov = self._ds["half"]
-        if hov is not None:
-            half = rd(hov, rows)
-            _extent_limit(self._f, self.limits, hov.name, half, self.voxel_size, active, f0, self.ids)
-        else:
-            half = np.broadcast_to(self.half_extents[None], (n, self.entity_count, 3))
-        _motion_limit(self._f, self.limits, motion, self.voxel_size, active, f0, self.ids)
+        half = rd(hov, rows) if hov is not None else np.broadcast_to(self.half_extents[None], (n, self.entity_count, 3))
         gd = self._ds["grounded"]
         grounded = self._f.read_flags(gd, rows).astype(np.int8) if gd is not None else None
-        return FrameBlock(f0, f1, start, motion, end, active, half, grounded)
+        blk = FrameBlock(f0, f1, start, motion, end, active, half, grounded)
+        if check:
+            self.check_limits(blk)
+        return blk
+
+    def check_limits(self, blk: FrameBlock) -> None:
+        """Refuse (TraceFormatError) an active row of ``blk`` whose motion or per-frame half
+        extents are over the limits."""
+        hov = self._ds["half"]
+        if hov is not None:
+            _extent_limit(self._f, self.limits, hov.name, blk.half, self.voxel_size, blk.active, blk.f0, self.ids)
+        _motion_limit(self._f, self.limits, blk.motion, self.voxel_size, blk.active, blk.f0, self.ids)
+
+    @property
+    def frame_chunks(self) -> tuple | None:
+        """Storage chunk shape of the frame datasets (frames, entities, 3), None when contiguous."""
+        return self._ds["start"].chunks
 
     def block_frames(self, rows: int = 1 << 17) -> int:
         """Frames per streamed block so that one block holds about ``rows`` entity-frames.

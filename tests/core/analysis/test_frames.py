@@ -6,6 +6,7 @@ discontinuity test across frame blocks): a second, independent path to the same 
 from __future__ import annotations
 
 
+import h5py
 import numpy as np
 import pytest
 
@@ -160,3 +161,63 @@ def test_nearest_position_of_an_inactive_entity(session):
     assert np.array_equal(session.nearest_position(5, 3), blk.start[20, 3])
     assert np.array_equal(session.nearest_position(30, 3), blk.start[30, 3])
     assert session.nearest_position(5, 3, reach=10) is None
+
+
+@pytest.fixture(scope="module")
+def striped(tmp_path_factory):
+    """700 frames x 150 entities with per-frame half extents, on-ground flags and gaps in activity:
+    storage chunks of 436 frames, so spans cross a window's edge; entity 30 (column 2) wants a
+    motion over the limit at frame 300 only."""
+    from resweep.core.format.limits import Limits
+    from trace_factory import write_rows
+    rng = np.random.default_rng(3)
+    F, N = 700, 150
+    start = rng.uniform(-4, 4, (F, N, 3))
+    motion = rng.uniform(-0.3, 0.3, (F, N, 3))
+    motion[300, 2, 0] = 2.0 * Limits().motion
+    active = rng.random((F, N)) > 0.1
+    active[300, 2] = True
+    path = write_rows(tmp_path_factory.mktemp("striped") / "striped.h5", start, motion, start + motion,
+                      active=active, frame_half_extents=rng.uniform(0.2, 0.6, (F, N, 3)),
+                      grounded=rng.random((F, N)) > 0.5)
+    with h5py.File(path, "r") as f:  # the file's own bytes, read without the project
+        raw = {k: f["frames"][k][()] for k in ("start", "motion", "end", "active", "half_extents", "grounded")}
+    return path, raw
+
+
+def test_session_frames_are_the_file_frames(striped):
+    """Spans inside a window, across a window's edge, longer than a window and at the ends,
+    in any order: the same numbers as h5py reads from the file."""
+    path, raw = striped
+    rng = np.random.default_rng(4)
+    spans = [(0, 1), (0, 2), (434, 438), (435, 437), (299, 300), (301, 305), (698, 700), (10, 600), (0, 700)]
+    spans += [tuple(sorted(rng.integers(0, 701, 2))) for _ in range(40)]
+    with TraceSession(path) as s:
+        assert s._window < 700  # the spans do cross windows
+        for a, b in spans:
+            if a <= 300 < b:
+                continue  # the over-limit frame: see the next test
+            blk = s.frames(a, b)
+            assert (blk.f0, blk.f1) == (a, b)
+            np.testing.assert_array_equal(blk.start, raw["start"][a:b])
+            np.testing.assert_array_equal(blk.motion, raw["motion"][a:b])
+            np.testing.assert_array_equal(blk.end, raw["end"][a:b])
+            np.testing.assert_array_equal(blk.active, raw["active"][a:b])
+            np.testing.assert_array_equal(blk.half, raw["half_extents"][a:b])
+            np.testing.assert_array_equal(blk.grounded, raw["grounded"][a:b].astype(np.int8))
+
+
+def test_session_frames_refuse_only_the_frames_over_the_limits(striped):
+    """The over-limit motion at frame 300 stops a read that includes frame 300, with the file's
+    one-line reason; frames of the same decoded window around it still read."""
+    path, _ = striped
+    with TraceSession(path) as s:
+        s.frames(290, 300)
+        s.frames(301, 320)
+        s.frame_state(299)
+        s.frame_state(302)
+        for span in ((299, 301), (300, 301), (250, 350)):
+            with pytest.raises(TraceFormatError, match="frame 300, entity 30: motion"):
+                s.frames(*span)
+        with pytest.raises(TraceFormatError, match="frame 300, entity 30"):
+            s.frame_state(300)

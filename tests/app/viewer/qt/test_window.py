@@ -146,6 +146,61 @@ def test_frame_panel_shows_the_core_numbers(qtbot, window):
     assert int(first[-1]) == int(row.candidates[0, 0])
 
 
+def test_frame_panel_after_many_steps_holds_what_a_fresh_panel_shows(qtbot, window):
+    """The panel replaces its text in place on each step (no emptying in between); after frames
+    of every sort (a divergence, an agreeing row, an inactive one, nothing focused) its document is
+    the one a newly made panel shows for the same facts."""
+    from resweep.app.viewer.panels import FramePanel, facts_html, legend_html
+    open_and_wait(qtbot, window, DEMO, frame=40, entity=102)
+    panel = window.frame_panel
+    for frame in (41, 42, 5, 77, 200, 40):
+        window.pb.set_frame(frame)
+        qtbot.waitUntil(lambda: window.state is not None and window.state.frame == frame, timeout=LOAD_TIMEOUT)
+        qtbot.wait(10)
+        assert panel.facts is not None and panel.facts.frame == frame
+        fresh = FramePanel()
+        fresh.setHtml(facts_html(panel.facts) + legend_html(list(window.viewport.legend) + list(window.viewport.block_legend)))
+        assert panel.toHtml() == fresh.toHtml(), frame
+    panel.show_facts(None, "nothing focused")
+    fresh = FramePanel()
+    fresh.setHtml(facts_html(None, "nothing focused"))
+    assert panel.toHtml() == fresh.toHtml()
+
+
+def test_frame_panel_scroll_bar_stays_up_while_stepping(qtbot, window):
+    """A panel too narrow for its numbers keeps its scroll bar while the frames change: it neither
+    hides nor shows again on each step (which made the whole window lay itself out anew)."""
+    from PyQt6.QtCore import QEvent, QObject
+
+    from resweep.app.viewer.panels import FramePanel
+    from resweep.app.viewer.report_md import frame_facts
+    open_and_wait(qtbot, window, DEMO, frame=40, entity=102)
+    panel = FramePanel()
+    qtbot.addWidget(panel)
+    panel.resize(160, 200)
+    panel.show()
+    qtbot.waitExposed(panel)
+    s = window.session
+    steps = [frame_facts(s, s.frame_state(f), 1) for f in (40, 41, 42, 43, 44, 45)]
+    panel.show_facts(steps[0])
+    qtbot.wait(10)
+    assert panel.horizontalScrollBar().isVisible()
+    flips = []
+
+    class Flips(QObject):
+        def eventFilter(self, obj, ev):
+            if ev.type() in (QEvent.Type.Show, QEvent.Type.Hide):
+                flips.append(ev.type())
+            return False
+    watch = Flips()
+    panel.horizontalScrollBar().installEventFilter(watch)
+    for facts in steps[1:]:
+        panel.show_facts(facts)
+        qtbot.wait(5)
+    assert flips == []
+    assert panel.horizontalScrollBar().isVisible()
+
+
 def _passes_sensitive_row():
     """First (frame, col) of the demo whose reference end moves when passes go 3 -> 1 (core)."""
     ends = {}
