@@ -15,6 +15,7 @@ from resweep.app.scene import style as S
 from resweep.app.scene.offscreen import mesh_actor
 from resweep.app.scene.story import axis_words, inset_radius
 from resweep.app.scene.voxel_mesh import mesh_type
+from resweep.app.scene.viewport import render_scale
 
 SPLIT = 0.6  # fraction of the window width the main view keeps while the magnified view shows
 
@@ -146,7 +147,9 @@ class MagnifiedView:
         pts = np.array([p, q, p - tick, p + tick, q - tick, q + tick])
         self.dim_mesh.points = pts
         self.dim_mesh.lines = np.array([2, 0, 1, 2, 2, 3, 2, 4, 5])
-        fs = int(np.clip(round(min(h * 0.028, (1 - SPLIT) * w * 0.042)), 9, 22))
+        # in points of the window's full size (a draft renders smaller, its text in fewer dots per inch)
+        s = render_scale(self.plotter)
+        fs = int(np.clip(round(min(h / s * 0.028, (1 - SPLIT) * w / s * 0.042)), 9, 22))
         for actor in (self.label, self.title):
             actor.GetTextProperty().SetFontSize(fs)
         self.text = dimension_text(story, vs)

@@ -598,12 +598,14 @@ class Viewport:
         self.plotter.renderer.ResetCameraClippingRange()
 
     def pick(self, x: float, y: float):
-        """World point (float64 (3,)) of the surface drawn at window pixel (x right, y down), or None."""
+        """World point (float64 (3,)) of the surface drawn at window pixel (x right, y down), or None
+        (window pixels: the picture at full size, see :func:`render_scale`)."""
         from vtkmodules.vtkRenderingCore import vtkCellPicker
         picker = vtkCellPicker()
         picker.SetTolerance(0.0005)
         h = self.plotter.render_window.GetSize()[1]
-        if not picker.Pick(float(x), float(h - 1 - y), 0.0, self.plotter.renderer):
+        s = render_scale(self.plotter)
+        if not picker.Pick(float(x) * s, float(h - 1 - y * s), 0.0, self.plotter.renderer):
             return None
         return np.asarray(picker.GetPickPosition(), np.float64)
 
@@ -624,7 +626,9 @@ class Viewport:
         ren.WorldToDisplay()
         dx, dy, _ = ren.GetDisplayPoint()
         h = self.plotter.render_window.GetSize()[1]
-        return float(dx), float(h - dy)
+        s = render_scale(self.plotter)
+        return float(dx) / s, float(h - dy) / s
+
 
 
 def seg_distance(points, segs) -> np.ndarray:
@@ -675,3 +679,10 @@ def _one_face():
     """A single placeholder quad so the voxel actor is made with its "rgb" array in place."""
     q = np.array([[[0, 0, 0], [1, 0, 0], [1, 1, 0], [0, 1, 0]]], np.float32)
     return Faces(q, np.zeros((1, 3), np.uint8), np.zeros((1, 3), np.float32), np.zeros(1, np.int32))
+
+
+def render_scale(plotter) -> float:
+    """Render pixels per window pixel of ``plotter``: below 1 while the viewer draws a draft
+    (app/viewer/view_paint.py), 1 for every other plotter. Window pixels are what the viewport's
+    ``pick`` and ``project`` take and give, and what text sizes are set in, whatever the scale."""
+    return float(getattr(plotter, "render_scale", 1.0))

@@ -58,6 +58,40 @@ def test_the_widget_shows_exactly_what_vtk_rendered(qtbot, demo_window):
     assert len(np.unique(shown.reshape(-1, 3), axis=0)) > 50  # a scene, not a blank widget
 
 
+def test_a_draft_is_rendered_small_and_shown_over_the_whole_widget(qtbot, demo_window):
+    """Drafts render at DRAFT_SCALE of the widget's pixels, read from the buffer VTK draws into
+    (no copy to VTK's display buffers). Reference: VTK's ordinary render of the same draft, read by
+    the filter. Qt shows it scaled up to the whole widget: against a plain enlargement of the
+    picture (each pixel repeated), Qt's smooth scaling differs only along edges."""
+    from resweep.app.viewer.view_paint import DRAFT_SCALE
+    win = demo_window
+    _settled(qtbot, win)
+    view = win.plotter
+    full = view.image.copy()
+    renders = view.renders
+    win.pb.set_frame(win.pb.frame + 1)
+    qtbot.waitUntil(lambda: view.renders > renders, timeout=10_000)
+    assert win.view_paint.draft and view.render_window.GetMultiSamples() == 0
+    H, W = full.shape[:2]
+    ours = view.image.copy()
+    assert ours.shape == (round(H * DRAFT_SCALE), round(W * DRAFT_SCALE), 3)
+    view.render_window.Render()  # VTK's own way, in the same draft settings
+    assert np.array_equal(ours, view._scene.screenshot())
+    shown = _shown(view)
+    assert shown.shape == (H, W, 3) == (view.height(), view.width(), 3)
+    k = round(1 / DRAFT_SCALE)
+    big = np.repeat(np.repeat(ours, k, axis=0), k, axis=1)[:H, :W]
+    big = np.pad(big, ((0, H - len(big)), (0, W - big.shape[1]), (0, 0)), mode="edge")
+    depth = view.screen().depth()
+    keep = np.array([5, 6, 5]) if depth == 16 else np.array([8, 8, 8])
+    shown, big = (a.astype(np.int16) >> (8 - keep) for a in (shown, big))
+    for rows in (slice(0, H // 2), slice(H // 2, H)):  # every quarter of the widget shows its part
+        for cols in (slice(0, W // 2), slice(W // 2, W)):
+            diff = np.abs(shown[rows, cols] - big[rows, cols])
+            assert diff.mean() < 1.0 and (diff > 2).mean() < 0.1
+    assert len(np.unique(ours.reshape(-1, 3), axis=0)) > 20
+
+
 def test_left_drag_turns_the_camera_about_its_focal_point(qtbot, demo_window):
     win = demo_window
     _settled(qtbot, win)

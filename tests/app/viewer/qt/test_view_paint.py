@@ -112,3 +112,51 @@ def test_entities_panel_counts_and_colours_after_the_cell_by_cell_refresh(qtbot,
                 worst = max(worst, rank)
         want_id = SEVERITY_COLOURS[worst].name() if worst else "#d9e2e8"
         assert table.item(r, win.entities.ID).foreground().color().name() == want_id, r
+
+
+def _actors(rw):
+    out = []
+    rens = rw.GetRenderers()
+    rens.InitTraversal()
+    for _ in range(rens.GetNumberOfItems()):
+        acts = rens.GetNextItem().GetActors()
+        acts.InitTraversal()
+        out += [acts.GetNextItem() for _ in range(acts.GetNumberOfItems())]
+    return out
+
+
+def test_a_draft_renders_small_but_keeps_window_pixels_and_sizes_on_screen(qtbot, demo_window):
+    """A draft renders at DRAFT_SCALE of the window's pixels: picking and projecting still speak
+    window pixels (the full picture's), and lines, points and text (in points, so in dots per inch)
+    shrink by the scale so that they keep their size once Qt scales the picture up; the full
+    paint after it has every size back."""
+    from resweep.app.viewer.view_paint import DRAFT_SCALE
+    win = demo_window
+    vp, view, paint = win.viewport, win.plotter, win.view_paint
+    rw = view.render_window
+    qtbot.waitUntil(lambda: not paint.draft, timeout=5000)
+    size, dpi = tuple(rw.GetSize()), rw.GetDPI()
+    sizes = {a: (a.GetProperty().GetLineWidth(), a.GetProperty().GetPointSize()) for a in _actors(rw)}
+    assert any(lw > 1 for lw, _ in sizes.values())  # some lines are wide enough to shrink
+    x, y = size[0] * 0.5, size[1] * 0.6  # a window pixel on the floor in front of the focus
+    p = vp.pick(x, y)
+    assert p is not None
+    px = vp.project(p)
+    assert abs(px[0] - x) <= 1.01 and abs(px[1] - y) <= 1.01  # (pick counts rows from the pixel centre)
+    renders = _counter(win)
+    paint.request(draft=True)  # the same scene and camera, as a draft
+    qtbot.waitUntil(lambda: renders[0] > 0, timeout=10_000)
+    assert paint.draft and view.render_scale == DRAFT_SCALE
+    assert tuple(rw.GetSize()) == tuple(round(s * DRAFT_SCALE) for s in size)
+    assert rw.GetDPI() == round(dpi * DRAFT_SCALE)
+    for a, (lw, ps) in sizes.items():
+        assert a.GetProperty().GetLineWidth() == max(1.0, lw * DRAFT_SCALE)
+        assert a.GetProperty().GetPointSize() == max(1.0, ps * DRAFT_SCALE)
+    dx, dy = vp.project(p)  # the same window pixel, to the half-size picture's rounding
+    assert abs(dx - px[0]) <= 1.5 and abs(dy - px[1]) <= 1.5
+    q = vp.pick(x, y)  # and the same surface point there (a render pixel is two window pixels)
+    assert q is not None and np.linalg.norm(q - p) < 0.1
+    seen = renders[0]
+    qtbot.waitUntil(lambda: not paint.draft and renders[0] > seen, timeout=10_000)  # the settle paint
+    assert tuple(rw.GetSize()) == size and rw.GetDPI() == dpi and view.render_scale == 1.0
+    assert {a: (a.GetProperty().GetLineWidth(), a.GetProperty().GetPointSize()) for a in sizes} == sizes

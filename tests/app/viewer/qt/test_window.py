@@ -247,6 +247,8 @@ def test_skin_change_moves_the_reference_end_by_the_skin(qtbot, window):
 
 
 def grab(win):
+    """The view's full-quality picture now (a step paints a draft first: view_paint.py)."""
+    win.view_paint.full()
     win.plotter.render()
     return np.asarray(win.plotter.screenshot(return_img=True), np.int16)
 
