@@ -361,9 +361,10 @@ class MainWindow(QMainWindow):
             self._refreshing = False
 
     def _frame_state(self, session, frame: int):
-        """``session.frame_state(frame)``, solved off the GUI thread unless cached; None when
-        cancelled or superseded (another frame asked for, another trace opened)."""
-        if session.has_frame(frame):
+        """``session.frame_state(frame)``, solved off the GUI thread unless quick (cached, or no world
+        edit to apply in a trace of few entities); None when cancelled or superseded (another
+        frame asked for, another trace opened)."""
+        if session.is_quick(frame):  # a thread and its hand-over would cost half as much again
             return session.frame_state(frame)
         self._frame_cancel = False
         stop = lambda: self._frame_cancel or self.session is not session or self._refresh_again  # noqa: E731

@@ -18,6 +18,7 @@ from resweep.core.solve.settings import SolverSettings
 CACHE_FRAMES = 32  # frame states kept; a scrub back and forth over a second of 60 Hz play stays warm
 WINDOW_ROWS = 1 << 16  # entity-frames per cached window of decoded frames (about 3 MiB in float32)
 CACHE_WINDOWS = 4  # windows kept: a scrub, the trail behind it and a jump back stay decoded
+QUICK_ENTITIES = 4096  # a frame of at most this many entities solves in a few milliseconds
 
 
 class ViewRequestError(ResweepError):
@@ -115,6 +116,13 @@ class TraceSession:
     def has_frame(self, frame: int) -> bool:
         """Whether :meth:`frame_state` of ``frame`` is cached (costs no solve)."""
         return int(frame) in self._cache
+
+    def is_quick(self, frame: int) -> bool:
+        """Whether :meth:`frame_state` of ``frame`` costs about a millisecond: cached, or no world
+        edit to apply and at most QUICK_ENTITIES entities (a caller may then skip a thread)."""
+        if int(frame) in self._cache:
+            return True
+        return self.trace.entity_count <= QUICK_ENTITIES and self.world.edits_before(frame) == 0
 
     def frame_state(self, frame: int) -> FrameState:
         """Read, advance the world to, and re-solve ``frame`` (cached, least recently used out)."""

@@ -102,6 +102,14 @@ class VoxelWorld:
             self.version += 1
         self.frame = -(2**62)
 
+    def edits_before(self, frame: int) -> int:
+        """How many edits :meth:`advance_to` ``(frame)`` would write (0: the blocks stay as they are)."""
+        frame = int(frame)
+        stop = int(np.searchsorted(self._edit_frames, frame, side="right"))
+        if frame < self.frame and self._applied:
+            return stop + 1  # back: the recorded chunks come back first, then the edits up to frame
+        return max(0, stop - self._applied)
+
     def advance_to(self, frame: int) -> bool:
         """Apply every edit with ``edit frame <= frame`` (world as it stands when ``frame`` is solved).
 
@@ -109,7 +117,8 @@ class VoxelWorld:
         chunks. Returns True when the blocks changed.
         """
         frame = int(frame)
-        if frame < self.frame and self._applied:
+        restored = frame < self.frame and self._applied > 0
+        if restored:
             self.blocks[self._touched] = self._pristine
             self._applied = 0
             self.version += 1
@@ -129,7 +138,7 @@ class VoxelWorld:
         self.frame = frame
         if changed:
             self.version += 1
-        return changed
+        return changed or restored
 
 
 def chunks_from_dense(grid: np.ndarray, origin=(0, 0, 0), chunk_size: int = 16):

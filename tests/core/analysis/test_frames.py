@@ -221,3 +221,16 @@ def test_session_frames_refuse_only_the_frames_over_the_limits(striped):
                 s.frames(*span)
         with pytest.raises(TraceFormatError, match="frame 300, entity 30"):
             s.frame_state(300)
+
+
+def test_quick_frames_are_the_ones_without_world_edits_to_apply(session):
+    """The demo's world changes at frames 90 and 150 (module docstring): a frame is quick when it
+    is cached or the world needs no edit to reach it (a caller then solves it on its own thread)."""
+    session.frame_state(10)
+    assert session.is_quick(10) and session.is_quick(50) and session.is_quick(89)
+    assert not session.is_quick(90) and not session.is_quick(200)
+    session.frame_state(95)
+    assert session.is_quick(95) and session.is_quick(149) and not session.is_quick(150)
+    assert not session.is_quick(20)  # back before the edit: the recorded chunks come back
+    session.frame_state(20)
+    assert session.is_quick(95)  # cached

@@ -38,6 +38,26 @@ def test_edits_apply_in_order_outside_chunks_and_backwards():
     assert (w.block_at(1, 0, 1), w.block_at(100, 0, 0)) == (2, 0)
 
 
+def test_edits_before_counts_what_advancing_would_write():
+    """edits_before(f): the edit rows with frame <= f still to write, plus one for restoring the
+    recorded chunks when the world goes back after edits; zero exactly when advance_to(f) leaves
+    the blocks alone (it returns False). Frames visited forwards, backwards and at random; the
+    oracle is the edit table counted by hand."""
+    origin, blocks = chunks_from_dense(np.ones((8, 1, 8), np.uint16), (0, 0, 0), 8)
+    edits = np.array([[5, 1, 0, 1, 0], [5, 1, 0, 1, 2], [9, 100, 0, 0, 1], [7, 1, 0, 1, 0]])
+    rows_up_to = {f: int((edits[:, 0] <= f).sum()) for f in range(13)}  # 0..4: 0, 5..6: 2, 7..8: 3, 9..: 4
+    w = VoxelWorld(8, origin, blocks, unit_cube_shapes(4), edits=edits)
+    order = list(range(13)) + list(range(12, -1, -1)) + list(np.random.default_rng(5).integers(0, 13, 40))
+    at, written = -1, 0  # the frame the world stands at; edit rows in its blocks
+    for f in map(int, order):
+        back = f < at and written > 0
+        want = rows_up_to[f] + 1 if back else rows_up_to[f] - written
+        assert w.edits_before(f) == want, (at, f)
+        v = w.version
+        assert w.advance_to(f) == (want > 0) == (w.version != v), (at, f)
+        at, written = f, rows_up_to[f]
+
+
 def test_edit_opens_a_hole_for_the_solver(tmp_path):
     # A box resting on the floor over voxel (2, 0, 2) falls into it once an edit removes it.
     origin, blocks = chunks_from_dense(np.ones((8, 2, 8), np.uint16), (0, 0, 0), 8)
