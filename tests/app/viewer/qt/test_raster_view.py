@@ -62,7 +62,7 @@ def test_a_draft_is_rendered_small_and_shown_over_the_whole_widget(qtbot, demo_w
     """Drafts render at DRAFT_SCALE of the widget's pixels, read from the buffer VTK draws into
     (no copy to VTK's display buffers). Reference: VTK's ordinary render of the same draft, read by
     the filter. Qt shows it scaled up to the whole widget: against a plain enlargement of the
-    picture (each pixel repeated), Qt's smooth scaling differs only along edges."""
+    picture (each pixel repeated, as Qt draws it) it differs at most by rounding at the seams."""
     from resweep.app.viewer.view_paint import DRAFT_SCALE
     win = demo_window
     _settled(qtbot, win)
