@@ -566,16 +566,30 @@ class Viewport:
         return max(1e-3, (x1 - x0) * max(w, 1)) / max(1e-3, (y1 - y0) * max(h, 1))
 
     def _track(self):
-        """Move the camera with the focus, keeping its direction and distance."""
+        """Move the camera with the focus, keeping its direction and distance; back off along the
+        same direction when the frame's story no longer fits the view (a long step, a tunneling
+        jump: the camera never zooms in by itself)."""
         if self._focus is None:
             return
+        cam = self.plotter.camera
         if self._tracked is not None:
             delta = self._focus - self._tracked
             if np.any(delta):
-                cam = self.plotter.camera
                 cam.position = tuple(np.asarray(cam.position) + delta)
                 cam.focal_point = tuple(np.asarray(cam.focal_point) + delta)
         self._tracked = self._focus.copy()
+        if self._interest is not None:
+            pos, fp = np.asarray(cam.position, np.float64), np.asarray(cam.focal_point, np.float64)
+            dist = float(np.linalg.norm(pos - fp))
+            if dist > 0:
+                to_cam = (pos - fp) / dist
+                lo, hi = self._interest
+                pad = 1.5 * (self.session.world.voxel_size if self.session else 1.0)
+                centre = (lo + hi) / 2
+                need = frame_distance(lo - pad, hi + pad, to_cam, np.asarray(cam.up, np.float64), self._aspect())
+                need += float(np.linalg.norm(centre - fp))  # framed about the focus, not the box's centre
+                if need > dist * 1.02:
+                    cam.position = tuple(fp + to_cam * need)
         self.plotter.renderer.ResetCameraClippingRange()
 
     def turn(self, degrees: float) -> None:

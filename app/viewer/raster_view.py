@@ -139,6 +139,7 @@ class RasterView(QWidget):
                     prop.SetPointSize(max(1.0, prop.GetPointSize() * scale))
         self.render_window.SetDPI(max(1, round(self._dpi * scale)))  # text sizes are in points
         self.render_scale = scale
+        self._fit_size()  # now: picking and projecting read the window's size with the scale
         self._stale = True
 
     def screenshot(self, return_img: bool = True) -> np.ndarray:

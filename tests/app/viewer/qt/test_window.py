@@ -270,6 +270,30 @@ def test_viewport_picture_changes_between_frames_without_rebuilding_voxels(qtbot
     assert a.shape[2] == 3 and a.std() > 5  # a real picture, not a blank
 
 
+def test_stepping_into_a_long_story_backs_the_camera_off_to_show_it(qtbot, window):
+    """Stepping keeps the camera's direction and follows the focus; when a frame's story does not
+    fit (the dash at frame 40 ends 50 voxels on, through the plank wall), the camera backs off
+    along its direction until the start box and the recorded end are both in the view. The
+    positions come from the trace file read here, projected by the view's camera."""
+    open_and_wait(qtbot, window, DEMO, frame=38, entity=102)
+    cam = window.plotter.camera
+    before = np.asarray(cam.position) - np.asarray(cam.focal_point)
+    for _ in range(2):
+        press(qtbot, window, Qt.Key.Key_Right)
+    assert window.pb.frame == 40
+    with open_trace(DEMO) as tr:
+        b = tr.frames(40, 41)
+        start, rec = np.asarray(b.start[0, DASHER_COL], float), np.asarray(b.end[0, DASHER_COL], float)
+    assert np.linalg.norm(rec - start) > 40  # the long story
+    after = np.asarray(cam.position) - np.asarray(cam.focal_point)
+    assert np.allclose(after / np.linalg.norm(after), before / np.linalg.norm(before))  # same direction
+    assert np.linalg.norm(after) > np.linalg.norm(before)  # further back
+    w, h = window.plotter.width(), window.plotter.height()
+    for point in (start, rec):
+        x, y = window.viewport.project(point)
+        assert 0 <= x < w and 0 <= y < h, (point, x, y)
+
+
 def expected_caption(frame: int, eid: int) -> list[str]:
     """The caption of the dasher's picture written out from the core's check (not from caption.py):
     file and frame; entity, name and the first reference hit; the kind in words (label and meaning
