@@ -545,11 +545,7 @@ class Viewport:
             m = m if m is not None else h1
             to_cam = np.cross(m, up) + 0.12 * up  # motion runs left to right
         to_cam = to_cam / np.linalg.norm(to_cam)
-        lo, hi = self._interest if self._interest is not None else (np.zeros(3), np.ones(3))
-        centre = (lo + hi) / 2
-        vs = self.session.world.voxel_size if self.session else 1.0
-        pad = 1.5 * vs  # a voxel and a half of context around the story
-        dist = frame_distance(lo - pad, hi + pad, to_cam, view_up, self._aspect())
+        centre, dist = self._framing(to_cam, view_up)
         cam = self.plotter.camera
         cam.focal_point = tuple(centre)
         cam.position = tuple(centre + to_cam * dist)
@@ -583,14 +579,19 @@ class Viewport:
             dist = float(np.linalg.norm(pos - fp))
             if dist > 0:
                 to_cam = (pos - fp) / dist
-                lo, hi = self._interest
-                pad = 1.5 * (self.session.world.voxel_size if self.session else 1.0)
-                centre = (lo + hi) / 2
-                need = frame_distance(lo - pad, hi + pad, to_cam, np.asarray(cam.up, np.float64), self._aspect())
+                centre, need = self._framing(to_cam, np.asarray(cam.up, np.float64))
                 need += float(np.linalg.norm(centre - fp))  # framed about the focus, not the box's centre
                 if need > dist * 1.02:
                     cam.position = tuple(fp + to_cam * need)
         self.plotter.renderer.ResetCameraClippingRange()
+
+    def _framing(self, to_cam, view_up):
+        """(centre float64 (3,), distance) of a camera looking along -``to_cam`` (unit) that frames
+        the story's region with a voxel and a half of context around it."""
+        lo, hi = self._interest if self._interest is not None else (np.zeros(3), np.ones(3))
+        vs = self.session.world.voxel_size if self.session else 1.0
+        pad = 1.5 * vs
+        return (lo + hi) / 2, frame_distance(lo - pad, hi + pad, to_cam, view_up, self._aspect())
 
     def turn(self, degrees: float) -> None:
         """Turntable: orbit the camera ``degrees`` about the up axis through the focused story's
@@ -649,7 +650,6 @@ class Viewport:
         h = self.plotter.render_window.GetSize()[1]
         s = render_scale(self.plotter)
         return float(dx) / s, float(h - dy) / s
-
 
 
 def seg_distance(points, segs) -> np.ndarray:

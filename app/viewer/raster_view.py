@@ -133,6 +133,8 @@ class RasterView(QWidget):
                 actors.InitTraversal()
                 for _ in range(actors.GetNumberOfItems()):
                     a = actors.GetNextItem()
+                    if a in self._widths:  # shared by two renderers (the magnified view's): once
+                        continue
                     prop = a.GetProperty()
                     self._widths[a] = (prop.GetLineWidth(), prop.GetPointSize())
                     prop.SetLineWidth(max(1.0, prop.GetLineWidth() * scale))
@@ -181,8 +183,8 @@ class RasterView(QWidget):
         self._stale = False
 
     def _fit_size(self) -> tuple[int, int]:
-        """Size the render window (and the interactor's idea of it) to the widget in device
-        pixels; returns (W, H)."""
+        """Size the render window (and the interactor's idea of it) to the widget's device pixels
+        times ``render_scale``; returns (W, H)."""
         r = self.devicePixelRatioF() * self.render_scale
         w, h = max(1, round(self.width() * r)), max(1, round(self.height() * r))
         if tuple(self.render_window.GetSize()) != (w, h):
