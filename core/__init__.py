@@ -4,8 +4,8 @@ Never imports Qt, VTK or pyvista; usable from scripts, notebooks and CI. Importi
 neither h5py nor numba: each name below is imported on first use, so ``resweep info``,
 importers and cluster schedulers do not pay for the solver.
 
-Layers (lowest first; enforced by import-linter): ``errors``, ``jit`` < ``format`` < ``world`` <
-``solve`` < ``check`` < ``analysis`` < ``demo``.
+Layers (lowest first; enforced by import-linter): ``errors``, ``jit`` < ``world``, ``codec`` <
+``format`` < ``solve`` < ``check`` < ``analysis`` < ``demo``.
 """
 from __future__ import annotations
 

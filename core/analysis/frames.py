@@ -76,6 +76,7 @@ class TraceSession:
 
     def __init__(self, path, settings: SolverSettings = SolverSettings()):
         self.trace: Trace = open_trace(path)  # raises TraceFormatError
+        self.trace.decode_with_kernels()  # frames are solved here: numba is loaded anyway
         self.path = str(path)
         self.settings = settings
         self.world = self.trace.world()

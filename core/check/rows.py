@@ -191,6 +191,8 @@ def warm_up(precision: str = "float64", frame_dtype=None, depths: bool = False) 
         if depths:
             overlap_depths(w, row, np.full((1, 3), 0.25), precision)
         if frame_dtype is not None:
+            from resweep.core.codec.nb_decode import warm_up as warm_decode
+            warm_decode()
             dt, ft = np.dtype(precision), np.dtype(frame_dtype)
             one = np.zeros((1, 1, 3), ft)
             nb_gather.gather_rows(one, one, one, np.ones((1, 1), bool), np.zeros((1, 3)), np.zeros(1, bool), False,

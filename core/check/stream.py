@@ -134,6 +134,7 @@ def check_trace(trace: Trace, settings: SolverSettings = SolverSettings(), limit
     and decompressing a 6 M entity-frame trace is about a quarter of its CPU time).
     """
     report = TraceReport(trace.path, trace.frame_count, trace.entity_count, 0, ended_early=trace.ended_early_info())
+    trace.decode_with_kernels()  # the solver loads numba anyway: decode frames on its threads too
     world = trace.world()
     tol = settings.tolerance * trace.voxel_size
     dt = settings.dtype

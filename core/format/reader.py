@@ -13,6 +13,7 @@ import numpy as np
 
 from resweep.core.errors import TraceFormatError, printable
 from resweep.core.format.datasets import FRAME_VECTORS, DatasetSpec, spec
+from resweep.core.format.chunk_read import ChunkReader
 from resweep.core.format.h5safe import H5_FAILURES, SafeFile
 from resweep.core.format.limits import Limits, current
 from resweep.core.world.shapes import IMPLICIT_TYPES, BlockShapes, unit_cube_shapes
@@ -70,6 +71,7 @@ class Trace:
         self._worlds = worlds
         self._blocks_key = None
         self._f = SafeFile(path, swmr=swmr)
+        self._chunks = ChunkReader(self._f)
         self.path = self._f.path
         try:
             self._load()
@@ -376,23 +378,50 @@ class Trace:
     def frames(self, f0: int, f1: int, check: bool = True) -> FrameBlock:
         """Frames ``[f0, f1)`` (clamped to the trace). ``check=False`` skips the limits on motion and
         half extents (:meth:`check_limits`), for a caller that checks the part it uses."""
+        return self._decode(self._fetch(f0, f1), check)
+
+    def decode_with_kernels(self, on: bool = True, min_bytes: int | None = None) -> None:
+        """From now on decode compressed frame chunks on every solver thread (``chunk_read.py``)
+        rather than through h5py on one. Off by default: it loads numba, which readers that do
+        not solve (``resweep info``, the first-open vetting, exports) should not pay for; the
+        check and the viewer turn it on. The frames read are the same either way. Reads of
+        fewer than ``min_bytes`` decoded bytes (default ``chunk_read.MIN_KERNEL_BYTES``) still go
+        through h5py, which is quicker for them."""
+        self._chunks.kernels = bool(on)
+        if min_bytes is not None:
+            self._chunks.min_bytes = int(min_bytes)
+
+    #: Frame datasets of a block, in fetch order; the flag datasets are read as bytes, then != 0.
+    _BLOCK_DATASETS = ("start", "motion", "end", "half", "active", "grounded")
+    _FLAG_DATASETS = ("active", "grounded")
+
+    def _fetch(self, f0: int, f1: int):
+        """First half of :meth:`frames`: the stored bytes of frames ``[f0, f1)`` (I/O only, no
+        decoding; a prefetch thread runs it while the solver works). (f0, f1, names, Fetched)."""
         f0 = max(0, int(f0))
         f1 = min(self.frame_count, int(f1))
         f1 = max(f0, f1)
-        rd = self._f.read
         # recorder files hold columns beyond the committed entities; other files end at N anyway
-        rows = np.s_[f0:f1, :self.entity_count]
-        start = rd(self._ds["start"], rows)
-        motion = rd(self._ds["motion"], rows)
-        end = rd(self._ds["end"], rows)
-        n = f1 - f0
-        act = self._ds["active"]
-        active = self._f.read_flags(act, rows) if act is not None else np.ones((n, self.entity_count), bool)
-        hov = self._ds["half"]
-        half = rd(hov, rows) if hov is not None else np.broadcast_to(self.half_extents[None], (n, self.entity_count, 3))
-        gd = self._ds["grounded"]
-        grounded = self._f.read_flags(gd, rows).astype(np.int8) if gd is not None else None
-        blk = FrameBlock(f0, f1, start, motion, end, active, half, grounded)
+        names, requests = [], []
+        for name in self._BLOCK_DATASETS:
+            ds = self._ds[name]
+            if ds is not None:
+                names.append(name)
+                requests.append((ds, ((f0, f1), (0, self.entity_count), *((0, n) for n in ds.shape[2:]))))
+        return f0, f1, names, self._chunks.fetch(requests, flags=[n in self._FLAG_DATASETS for n in names])
+
+    def _decode(self, fetched, check: bool) -> FrameBlock:
+        """Second half of :meth:`frames`: decode (on every solver thread) and check limits."""
+        f0, f1, names, got = fetched
+        arrays = dict(zip(names, got.arrays()))
+        n, N = f1 - f0, self.entity_count
+        for name in self._FLAG_DATASETS:
+            if name in arrays:  # the file's bytes as stored, != 0 (see SafeFile.read_flags)
+                arrays[name] = arrays[name].view(np.uint8) != 0
+        active = arrays["active"] if "active" in arrays else np.ones((n, N), bool)
+        half = arrays["half"] if "half" in arrays else np.broadcast_to(self.half_extents[None], (n, N, 3))
+        grounded = arrays["grounded"].astype(np.int8) if "grounded" in arrays else None
+        blk = FrameBlock(f0, f1, arrays["start"], arrays["motion"], arrays["end"], active, half, grounded)
         if check:
             self.check_limits(blk)
         return blk
@@ -437,12 +466,12 @@ class Trace:
             return
         from concurrent.futures import ThreadPoolExecutor
         with ThreadPoolExecutor(1, thread_name_prefix="resweep-read") as pool:
-            ahead = pool.submit(self.frames, firsts[0], min(firsts[0] + step, f1))
+            ahead = pool.submit(self._fetch, firsts[0], min(firsts[0] + step, f1))
             for a in firsts[1:]:
-                blk = ahead.result()
-                ahead = pool.submit(self.frames, a, min(a + step, f1))
-                yield blk
-            yield ahead.result()
+                fetched = ahead.result()
+                ahead = pool.submit(self._fetch, a, min(a + step, f1))
+                yield self._decode(fetched, True)
+            yield self._decode(ahead.result(), True)
 
     @property
     def last_time(self) -> float | None:
@@ -547,8 +576,21 @@ def _first_over(big: np.ndarray, active: np.ndarray | None):
     return np.unravel_index(int(np.argmax(big)), big.shape)
 
 
+def _all_within(a: np.ndarray, bound: float) -> bool:
+    """True when every |a| <= ``bound`` (then no row can be over a limit): the largest and smallest
+    value in the array's own dtype (widening to float64 is exact, so the test is the exact one),
+    two reductions without the temporaries of the row-by-row test. False when some value is over
+    or NaN (max and min propagate NaN): the caller then runs the row-by-row test."""
+    if a.size == 0:
+        return True
+    with np.errstate(invalid="ignore"):
+        return bool(float(a.max()) <= bound and -float(a.min()) <= bound)
+
+
 def _extent_limit(f, lim, name, half, vs, active=None, f0=0, ids=None):
     """Refuse half extents over ``lim.extent`` voxels (non-finite ones are left to the check)."""
+    if _all_within(half, lim.extent * vs):
+        return
     with np.errstate(invalid="ignore"):
         big = (np.abs(np.asarray(half, np.float64)) > lim.extent * vs).any(-1)
     if half.ndim == 2:
@@ -565,6 +607,8 @@ def _extent_limit(f, lim, name, half, vs, active=None, f0=0, ids=None):
 
 def _motion_limit(f, lim, motion, vs, active, f0, ids):
     """Refuse an active row whose motion along an axis is over ``lim.motion`` voxels."""
+    if _all_within(motion, lim.motion * vs):
+        return
     with np.errstate(invalid="ignore"):
         big = (np.abs(np.asarray(motion, np.float64)) > lim.motion * vs).any(-1)
     hit = _first_over(big, active)

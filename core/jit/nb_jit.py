@@ -52,7 +52,7 @@ _CORE = Path(__file__).resolve().parents[1]
 
 
 #: Subpackages whose modules kernels read (kernels, and the constants they compile in).
-KERNEL_PACKAGES = ("jit", "world", "solve", "check")
+KERNEL_PACKAGES = ("jit", "codec", "world", "solve", "check")
 
 
 def kernel_digest() -> str:
