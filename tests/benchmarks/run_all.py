@@ -5,7 +5,7 @@
 
 Rows: the kernel per core against the yardstick's tight C loop (CPU seconds), throughput against
 the compiled C yardstick and 2 threads against 1 (whole processes), trace-length scaling (2, 4 and
-8 M entity-frames: time and peak RSS), long sweeps (4, 16, 64 voxels), the kernel on 1 vs 2
+8 M entity-frames: time and peak RSS), reading frames (h5py against the chunk kernels), long sweeps (4, 16, 64 voxels), the kernel on 1 vs 2
 threads, warm start, and the kernel against a pure-numpy solve. Each target is printed as a ratio
 measured in this one run. Traces are generated once into ``--workdir``. Other
 benchmarks in this folder (e.g. the viewport's) run on their own.
@@ -15,6 +15,7 @@ from __future__ import annotations
 import sys
 import time
 
+import bench_decode
 import bench_kernel
 import bench_length
 import bench_numpy
@@ -36,6 +37,7 @@ def main(argv=None) -> int:
     for title, bench, extra in (
         ("kernel vs tight C", bench_kernel, {"frames": 5000, "repeat": max(args.repeat, 5)}),
         ("vs compiled C", bench_resolve, {}),
+        ("reading frames", bench_decode, {"frames": args.frames}),
         ("trace length", bench_length, {"frames": 10000}),
         ("long sweeps", bench_sweeps, {"rows": 20000, "repeat": max(args.repeat, 5)}),
         ("threads", bench_threads, {"frames": 3000, "repeat": max(args.repeat, 15)}),
