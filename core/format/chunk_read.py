@@ -65,29 +65,23 @@ class Layout:
         return math.prod(self.chunks) * self.dtype.itemsize
 
 
-def layout_of(ds, swmr: bool, file_size: int) -> Layout | None:
-    """The :class:`Layout` of h5py dataset ``ds``, or None when h5py should read it (see the
-    module docstring). Raises H5_FAILURES from HDF5 on a damaged chunk index."""
-    if swmr or ds.chunks is None or ds.dtype.hasobject or ds.dtype.itemsize == 0:
+def layout_of(ds, file) -> Layout | None:
+    """The :class:`Layout` of h5py dataset ``ds`` of SafeFile ``file``, or None when h5py should read
+    it (see the module docstring). Raises H5_FAILURES from HDF5, or TraceFormatError for a chunk
+    index that is damaged (``SafeFile.chunk_index``) or holds a chunk larger than any encoder makes."""
+    if file.swmr or ds.chunks is None or ds.dtype.hasobject or ds.dtype.itemsize == 0:
         return None
     plist = ds.id.get_create_plist()
     ids = [plist.get_filter(k)[0] for k in range(plist.get_nfilters())]
     if ids not in ([], [SHUFFLE], [DEFLATE], [LZF], [SHUFFLE, DEFLATE], [SHUFFLE, LZF]):
         return None  # fletcher32, another order, or something new: h5py decodes it
-    index = {}
+    rows = file.chunk_index(ds)
     rank = len(ds.chunks)
-
-    def take(info):
-        index[tuple(info.chunk_offset)] = (info.byte_offset, info.size, info.filter_mask)
-
-    ds.id.chunk_iter(take)
-    lay = Layout(tuple(ds.chunks), ds.dtype, {fid: k for k, fid in enumerate(ids)}, index)
-    limit = int(lay.chunk_bytes * MAX_STORED_GROWTH) + 4096
-    for place, size, _ in index.values():
-        if place is None or place < 0 or size < 0 or size > limit or place + size > file_size:
-            raise ValueError("its chunk index points outside the file or holds an impossible chunk size")
-    if any(len(k) != rank for k in index):
-        raise ValueError("its chunk index holds offsets of the wrong rank")
+    lay = Layout(tuple(ds.chunks), ds.dtype, {fid: k for k, fid in enumerate(ids)},
+                 {tuple(r[:rank]): (r[rank + 2], r[rank + 1], r[rank]) for r in rows.tolist()})
+    if len(rows) and rows[:, rank + 1].max() > int(lay.chunk_bytes * MAX_STORED_GROWTH) + 4096:
+        raise file.fail(ds.name, "cannot read stored chunks (truncated or corrupt?): its chunk index holds a "
+                                 "chunk larger than any encoder makes")
     return lay
 
 
@@ -228,7 +222,7 @@ class ChunkReader:
         key = ds.name
         if key not in self._layouts:
             try:
-                self._layouts[key] = layout_of(ds, self.file.swmr, self.file.size)
+                self._layouts[key] = layout_of(ds, self.file)
             except H5_FAILURES as exc:
                 raise self.file.fail(ds.name, f"cannot read stored chunks (truncated or corrupt?): {exc}") from None
         return self._layouts[key]

@@ -322,36 +322,21 @@ class SafeFile:
         try:
             plist = ds.id.get_create_plist()
             pipeline = [plist.get_filter(k)[:3] for k in range(plist.get_nfilters())]
-            h.update(repr((ds.shape, ds.dtype.str, ds.chunks, pipeline, ds.fillvalue)).encode())
-            if ds.chunks is None:
-                return None
-            spots = []
-            ds.id.chunk_iter(spots.append)
-        except TraceFormatError:
-            raise
+            chunks = ds.chunks
+            h.update(repr((ds.shape, ds.dtype.str, chunks, pipeline, ds.fillvalue)).encode())
         except H5_FAILURES as exc:
             raise self.fail(ds.name, f"cannot read stored chunks (truncated or corrupt?): {exc}") from None
-        if not spots:
+        if chunks is None:
+            return None
+        index = self.chunk_index(ds)
+        if not len(index):
             return h.digest()
-        rank = len(ds.chunks)
-        # one row per chunk: its offset in the dataset, filter mask, size and place in the file
-        # (-1 when HDF5 gives none); the place is not hashed, so a world stored identically in two
-        # files has one digest
-        try:
-            index = np.array([(*c.chunk_offset, c.filter_mask, c.size,
-                               -1 if c.byte_offset is None else c.byte_offset) for c in spots], dtype=np.int64)
-        except (OverflowError, ValueError, TypeError):
-            raise self.fail(ds.name, "cannot read stored chunks (truncated or corrupt?): its chunk index holds "
-                                     "impossible offsets") from None
+        rank = len(chunks)
+        # the place is not hashed, so a world stored identically in two files has one digest
         sizes, places = index[:, rank + 1], index[:, rank + 2]
         try:
             fd = os.open(self.path, os.O_RDONLY)
             try:
-                size = os.fstat(fd).st_size
-                bad = (places < 0) | (sizes < 0) | (places > size) | (sizes > size)
-                if bad.any() or (places + sizes > size).any():
-                    raise self.fail(ds.name, "cannot read stored chunks (truncated or corrupt?): a chunk lies past "
-                                             "the end of the file")
                 h.update(index[:, :rank + 2].tobytes())
                 lo, hi, total = int(places.min()), int((places + sizes).max()), int(sizes.sum())
                 if (places[1:] == places[:-1] + sizes[:-1]).all():  # stored back to back in index order
@@ -371,6 +356,40 @@ class SafeFile:
         except OSError as exc:
             raise self.fail(ds.name, f"cannot read stored chunks: {exc.strerror or exc}") from None
         return h.digest()
+
+    def chunk_index(self, ds) -> np.ndarray:
+        """HDF5's index of the stored chunks of chunked dataset ``ds``, checked against the file.
+
+        Returns:
+            int64 (K, rank + 3), one row per stored chunk: its offset in the dataset (rank
+            columns, elements), its filter mask, its stored size and its place in the file (bytes).
+        Raises TraceFormatError when the index cannot be read, holds impossible offsets, or
+        places a chunk (partly) outside the file (sizes and places are each checked against the
+        file size first, so their sum cannot overflow).
+        """
+        spots = []
+        try:
+            rank = len(ds.chunks)
+            ds.id.chunk_iter(spots.append)
+        except H5_FAILURES as exc:
+            raise self.fail(ds.name, f"cannot read stored chunks (truncated or corrupt?): {exc}") from None
+        try:
+            index = np.array([(*c.chunk_offset, c.filter_mask, c.size,
+                               -1 if c.byte_offset is None else c.byte_offset) for c in spots],
+                             dtype=np.int64).reshape(len(spots), rank + 3)
+        except (OverflowError, ValueError, TypeError):
+            raise self.fail(ds.name, "cannot read stored chunks (truncated or corrupt?): its chunk index holds "
+                                     "impossible offsets") from None
+        sizes, places = index[:, rank + 1], index[:, rank + 2]
+        try:
+            size = os.stat(self.path).st_size
+        except OSError as exc:
+            raise self.fail(ds.name, f"cannot read stored chunks: {exc.strerror or exc}") from None
+        bad = (places < 0) | (sizes < 0) | (places > size) | (sizes > size)
+        if bad.any() or (places + sizes > size).any():
+            raise self.fail(ds.name, "cannot read stored chunks (truncated or corrupt?): a chunk lies past "
+                                     "the end of the file")
+        return index
 
     def _hash_range(self, h, fd: int, start: int, length: int, name: str) -> None:
         """Feed ``length`` bytes of the file from ``start`` to ``h``, in pieces of at most 4 MiB."""

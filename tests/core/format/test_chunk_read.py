@@ -73,7 +73,7 @@ def test_every_box_equals_hdf5s_read(tmp_path, pipeline):
                 f.create_dataset(name, data=_data(shape, dt, rng), chunks=chunks, **PIPELINES[pipeline])
                 names.append(name)
     with closing(SafeFile(path)) as sf:  # the path under test really is the chunk path here
-        assert all(layout_of(sf.dataset(n), False, sf.size) is not None for n in names)
+        assert all(layout_of(sf.dataset(n), sf) is not None for n in names)
     _compare(path, names)
 
 
@@ -114,8 +114,8 @@ def test_unsupported_pipelines_and_swmr_read_through_h5py(tmp_path):
                          compression="gzip")
         f.create_dataset("flat", data=np.arange(60.0).reshape(20, 3))
     with closing(SafeFile(path)) as sf:
-        assert layout_of(sf.dataset("sum"), False, sf.size) is None
-        assert layout_of(sf.dataset("flat"), False, sf.size) is None
+        assert layout_of(sf.dataset("sum"), sf) is None
+        assert layout_of(sf.dataset("flat"), sf) is None
     _compare(path, ["sum", "flat"])
 
 
