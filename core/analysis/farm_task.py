@@ -177,21 +177,22 @@ def check_batch(jobs, options: FarmOptions, should_stop=None, report=None) -> li
     def running(rows):
         report(done[0], done[1] + rows)
 
-    for path, frames in jobs:
-        if should_stop is not None and should_stop():
-            break
-        if isolated:
-            part = _in_child(path, frames, options, should_stop, running if report is not None else None)
-            if part is None:  # stopped while the child worked on it
-                break
-        else:
-            part = check_part(path, options, frames, should_stop, running if report is not None else None)
+    def finished(part, frames):
         out.append(part)
         traces, rows = _tally(part, frames is None)
         done[0] += traces
         done[1] += rows
         if report is not None:
             report(done[0], done[1])
+
+    progress = running if report is not None else None
+    if isolated:
+        _in_child(jobs, options, should_stop, progress, finished)
+        return out
+    for path, frames in jobs:
+        if should_stop is not None and should_stop():
+            break
+        finished(check_part(path, options, frames, should_stop, progress), frames)
     return out
 
 
@@ -224,35 +225,61 @@ def _child_setup(options: FarmOptions):
     return env, KERNEL_ADDRESS_SPACE
 
 
-def _in_child(path, frames, options: FarmOptions, should_stop, progress):
-    """One job in this process's kept farm child (started, or replaced, as needed); None when
-    ``should_stop()`` became True while it ran (the child is then killed)."""
+#: Requests written to the kept child ahead of the one it works on: it starts the next job as soon
+#: as it answers one, instead of waiting for this process to read the answer and write again.
+AHEAD = 1
+
+
+def _in_child(jobs, options: FarmOptions, should_stop, progress, finished) -> None:
+    """Run ``jobs`` in turn in this process's kept farm child (started, or replaced, as needed),
+    calling ``finished(part, frames)`` for each; stops early when ``should_stop()`` becomes True
+    (between jobs, or while the child works on one: the child is then killed).
+
+    Up to :data:`AHEAD` more requests wait in the child's input while it works. When the child dies
+    or hangs on a job, that job comes back with the reason; the jobs written after it, which it
+    never answered, go to the next child.
+    """
     global _child
+    from collections import deque
     from resweep.core.analysis import farm_child
     from resweep.core.errors import TraceFormatError
     from resweep.core.format.vet import IsolatedChild, Verdict, _answer
     env, extra = _child_setup(options)
-    t0 = time.perf_counter()
     heard = None if progress is None else (lambda doc: progress(int(doc["progress"])))
+    todo, sent = deque(jobs), deque()  # sent: written to the current child, not yet answered
     with _child_lock:
-        if _child is not None and not _child.fits(farm_child.__name__, env, extra):
-            _child.close()
-            _child = None
-        if _child is None:
-            if not _closer:
-                _closer.append(atexit.register(_close_child))
-            _child = IsolatedChild(farm_child.__name__, env, extra)
-        got = _child.exchange(farm_child.request(path, frames, options), heard, should_stop)
-        mem = _child.mem
-        if not _child.alive:
-            _child = None
-    if got is None:
-        return None
-    if isinstance(got, dict) and got.get("ok"):
-        return farm_child.part_of(got, path, frames)
-    why = got if isinstance(got, Verdict) else _answer(got, mem)
-    return PartResult(path, frames, error=TraceFormatError(path, why.dataset, why.reason).one_line(),
-                      seconds=time.perf_counter() - t0)
+        while todo or sent:
+            if not sent:
+                if should_stop is not None and should_stop():
+                    return
+                if _child is not None and not _child.fits(farm_child.__name__, env, extra):
+                    _child.close()
+                    _child = None
+                if _child is None:
+                    if not _closer:
+                        _closer.append(atexit.register(_close_child))
+                    _child = IsolatedChild(farm_child.__name__, env, extra)
+            while todo and len(sent) <= AHEAD and not (sent and should_stop is not None and should_stop()):
+                job = todo.popleft()
+                _child.send(farm_child.request(*job, options))
+                sent.append(job)
+            path, frames = sent.popleft()
+            t0 = time.perf_counter()
+            got = _child.receive(heard, should_stop)
+            mem = _child.mem
+            if not _child.alive:
+                _child = None
+                todo.extendleft(reversed(sent))  # the dead child never answered these
+                sent.clear()
+            if got is None:  # stopped while the child worked on it
+                return
+            if isinstance(got, dict) and got.get("ok"):
+                part = farm_child.part_of(got, path, frames)
+            else:
+                why = got if isinstance(got, Verdict) else _answer(got, mem)
+                part = PartResult(path, frames, error=TraceFormatError(path, why.dataset, why.reason).one_line(),
+                                  seconds=time.perf_counter() - t0)
+            finished(part, frames)
 
 
 def _plan(trace, options: FarmOptions):

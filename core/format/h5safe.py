@@ -43,8 +43,8 @@ class _Shared:
     Attributes:
         file: h5py.File; swmr: bool, opened in SWMR read mode; users: int, open SafeFiles.
         by_path: dict str -> h5py.Dataset, datasets by the name they were asked for;
-        by_addr: dict int -> h5py.Dataset, the same objects by file address (two names that
-            reach one dataset through a soft link share its handle).
+        by_addr: dict int -> h5py.Dataset, in SWMR mode the same objects by file address (two
+            names that reach one dataset through a link share its handle, which refreshes).
         lock: held while datasets are opened or refreshed, so no second handle of a dataset
             exists during a refresh.
     """
@@ -261,17 +261,28 @@ class SafeFile:
             node = self._resolve(name)
             if not isinstance(node, h5py.Dataset):
                 return node
-            try:
-                addr = h5py.h5o.get_info(node.id).addr
-            except H5_FAILURES as exc:
-                raise self.fail(name, f"cannot read object header (truncated or corrupt?): {exc}") from None
-            node = shared.by_addr.setdefault(addr, node)
+            if shared.swmr:  # a second handle of a dataset would fail its refresh; outside SWMR it is harmless
+                try:
+                    addr = h5py.h5o.get_info(node.id).addr
+                except H5_FAILURES as exc:
+                    raise self.fail(name, f"cannot read object header (truncated or corrupt?): {exc}") from None
+                node = shared.by_addr.setdefault(addr, node)
             shared.by_path[name] = node
             return node
 
     def read(self, ds, sel=()):
-        """``ds[sel]`` with read failures turned into one-line errors."""
+        """``ds[sel]`` with read failures turned into one-line errors.
+
+        Integer and float data selected by unit-step slices is read with one low-level HDF5 call
+        (:func:`_read_box`, the same read h5py makes): h5py's first read of a dataset sets up a
+        reader object per dataset, about 0.2 ms, and a small trace reads each dataset once.
+        Everything else goes through h5py's own indexing."""
         try:
+            dtype = ds.dtype
+            if dtype.kind in "iuf" and dtype.names is None and h5py.check_enum_dtype(dtype) is None:
+                got = _read_box(ds, sel, dtype, None)
+                if got is not None:
+                    return got
             return ds[sel]
         except H5_FAILURES as exc:
             raise self.fail(ds.name, f"cannot read data (truncated or corrupt?): {exc}") from None
@@ -285,23 +296,11 @@ class SafeFile:
         cost of the read on a small trace)."""
         try:
             ftype = ds.id.get_type()
-            shape = ds.shape
-            if ftype.get_size() != 1 or not shape:  # not one-byte, or no axes: h5py's own read
-                return self.read(ds, sel) != 0
-            sel = sel if isinstance(sel, tuple) else (sel,)
-            if len(sel) > len(shape) or any(not isinstance(s, slice) or s.step not in (None, 1) for s in sel):
-                return self.read(ds, sel) != 0
-            box = [s.indices(n)[:2] for s, n in zip(sel + (slice(None),) * (len(shape) - len(sel)), shape)]
-            count = tuple(max(0, b - a) for a, b in box)
-            raw = np.empty(count, np.uint8)
-            if raw.size:
-                fspace = ds.id.get_space()
-                fspace.select_hyperslab(tuple(a for a, _ in box), count)
-                ds.id.read(h5py.h5s.create_simple(count), fspace, raw, mtype=ftype)
-        except TraceFormatError:
-            raise
+            raw = _read_box(ds, sel, np.dtype(np.uint8), ftype) if ftype.get_size() == 1 else None
         except H5_FAILURES as exc:
             raise self.fail(ds.name, f"cannot read data (truncated or corrupt?): {exc}") from None
+        if raw is None:  # not one-byte, no axes, or not unit-step slices: h5py's own read
+            return self.read(ds, sel) != 0
         return raw != 0
 
     def stored_digest(self, ds) -> bytes | None:
@@ -428,6 +427,28 @@ class SafeFile:
             raise self.fail(f"{obj.name}@{key}", f"cannot read attribute: {exc}") from None
 
 
+def _read_box(ds, sel, dtype: np.dtype, mtype):
+    """``ds[sel]`` read with one low-level HDF5 call into a fresh ``dtype`` array, or None when
+    ``sel`` is not a tuple of unit-step slices (or one such slice) over a dataset with axes.
+
+    ``mtype``: the HDF5 memory type, None for the one h5py derives from ``dtype`` (what its own
+    read of integer and float data uses). A box with no elements reads nothing."""
+    shape = ds.shape
+    if not shape:  # null or scalar dataspace
+        return None
+    sel = sel if isinstance(sel, tuple) else (sel,)
+    if len(sel) > len(shape) or any(not isinstance(s, slice) or s.step not in (None, 1) for s in sel):
+        return None
+    box = [s.indices(n)[:2] for s, n in zip(sel + (slice(None),) * (len(shape) - len(sel)), shape)]
+    count = tuple(max(0, b - a) for a, b in box)
+    out = np.empty(count, dtype)
+    if out.size:
+        fspace = ds.id.get_space()
+        fspace.select_hyperslab(tuple(a for a, _ in box), count)
+        ds.id.read(h5py.h5s.create_simple(count), fspace, out, mtype=mtype)
+    return out
+
+
 # h5py's Group.get(name, getlink=True) and Group[name] for the hard links of a read-only file,
 # without the high-level layer's per-call costs (a File object made per lookup to learn the
 # mode; a trace's open does a few dozen lookups, a farm thousands of opens). Same low-level calls,
@@ -495,10 +516,23 @@ def _open_hard(group, part: str):
     if kind == h5py.h5i.GROUP:
         return h5py.Group(oid)
     if kind == h5py.h5i.DATASET:
-        return h5py.Dataset(oid, readonly=True)
+        return _ReadDataset(oid, readonly=True)
     if kind == h5py.h5i.DATATYPE:
         return h5py.Datatype(oid)
     raise TypeError("Unknown object type")
+
+
+class _ReadDataset(h5py.Dataset):
+    """h5py's Dataset of a file opened read-only, keeping its NumPy dtype: h5py builds a new one
+    from the HDF5 type at every ``.dtype``, and a trace's open asks about thirty times. Kept
+    with h5py's other per-dataset values, which ``refresh()`` clears."""
+
+    @property
+    def dtype(self):
+        got = self._cache_props.get("dtype")
+        if got is None:
+            got = self._cache_props["dtype"] = self.id.dtype
+        return got
 
 
 _HARD_LINK = h5py.HardLink()

@@ -200,11 +200,22 @@ class IsolatedChild:
         died, hung past its wall-time limit or answered something unreadable, or None when
         ``should_stop()`` became True first (the child is then killed; ``alive`` is False).
         Interim lines (``{"progress": ...}``) go to ``heard(doc)``."""
+        self.send(request)
+        return self.receive(heard, should_stop)
+
+    def send(self, request: str) -> None:
+        """Write one request line. The child answers requests in the order they were sent, so a
+        caller may write the next one before reading an answer (the child then never waits for
+        this process between requests); :meth:`receive` reads the answers, oldest first."""
         try:
             self.proc.stdin.write((request + "\n").encode())
             self.proc.stdin.flush()
         except OSError:  # it died before reading: its exit status says why
             pass
+
+    def receive(self, heard=None, should_stop=None):
+        """The answer to the oldest request not yet answered, as :meth:`exchange` returns it; the
+        wall-time limit counts from this call (when the child is working on that request)."""
         deadline = time.monotonic() + self.wall
         while True:
             left = deadline - time.monotonic()

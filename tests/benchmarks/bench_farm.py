@@ -11,7 +11,8 @@
    on 2 local workers (1 solver thread each) against 1 worker with 1 thread (target >= 1.6x); the
    plain 2-thread ``resweep check`` is shown too, and the split counts are checked against it.
 3. ``--only warm``: both of the above on an already started cluster (the steady state of a
-   long-lived one). 4. ``--only pertrace``: where one small trace's time goes, in one process.
+   long-lived one). 4. ``--only pertrace``: where one small trace's time goes, in one process, and one worker's
+   batch of them through its isolated child.
 """
 from __future__ import annotations
 
@@ -209,7 +210,19 @@ def run_pertrace(args) -> list[Row]:
             for k, v in zip(parts, (t1 - t0, t2 - t1, t3 - t2, t4 - t3)):
                 parts[k].append(v * 1e3)
     med = {k: statistics.median(v) for k, v in parts.items()}
+    # The same traces as a worker runs them: one batch through its isolated child (start-up and
+    # the child's first trace outside the timing), wall ms per trace, and the worker's own CPU.
+    from resweep.core.analysis.farm_task import FarmOptions, _close_child, check_batch
+    opts = FarmOptions(settings, limit=0, threads=1)
+    check_batch([(p, None) for p in files[:20]], opts)
+    t0, c0 = time.perf_counter(), time.process_time()
+    check_batch([(p, None) for p in files[20:]], opts)
+    n = max(1, len(files) - 20)
+    batch_ms, worker_cpu = (time.perf_counter() - t0) / n * 1e3, (time.process_time() - c0) / n * 1e3
+    _close_child()
     return [
+        Row("one small trace in a worker's batch, through its isolated child (mean wall ms; the worker's CPU ms)",
+            f"{batch_ms:.2f} ({worker_cpu:.2f})", "", "bench_farm.py --only pertrace"),
         Row("one small trace in one process: open+validate / check / close (median, ms)",
             f"{med['open']:.2f} / {med['check']:.2f} / {med['close']:.2f}", "", "bench_farm.py --only pertrace"),
         Row("  plain h5py on the same files: open, read every dataset but the world's blocks, close (median, ms)",

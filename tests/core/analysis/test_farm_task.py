@@ -82,3 +82,30 @@ def test_a_failure_of_our_own_in_the_child_names_the_trace_and_the_batch_goes_on
                                                                                 FarmOptions(SolverSettings(), threads=1))]
     assert parts[0].report is None and "internal error: AttributeError" in parts[0].error and "\n" not in parts[0].error
     assert parts[1].error is None and parts[1].report.entity_frames > 0
+
+
+def test_jobs_written_ahead_to_a_child_that_dies_go_to_the_next_child(tmp_path, monkeypatch):
+    """The worker writes the next job to its child before reading the answer to the current one
+    (farm_task.AHEAD). A file that makes HDF5 loop until the child's CPU-time limit kills it sits
+    in the middle of a batch: it comes back refused, and the jobs behind it, which the dead child
+    never answered, are checked by the next child exactly as a check of each trace alone reports.
+    Reference: ``check_trace`` of each good trace in this process."""
+    import hostile_traces as H
+    from farm_traces import soak_run
+    from resweep.core import open_trace
+    from resweep.core.analysis import farm_task
+    from resweep.core.check.stream import check_trace
+    monkeypatch.setenv("RESWEEP_VET_CPU", "2")
+    monkeypatch.delenv("RESWEEP_ISOLATE", raising=False)
+    good = [soak_run(tmp_path / f"run_{i}.h5", seed=20 + i, frames=30) for i in range(3)]
+    hang = tmp_path / "hang.h5"
+    H.heap_size_zero(H.one_row(tmp_path / "one_row.h5"), hang)
+    jobs = [(good[0], None), (str(hang), None), (good[1], None), (good[2], None)]
+    parts = [farm_task.unpack(p) for p in farm_task.check_batch(jobs, FarmOptions(SolverSettings(), limit=50,
+                                                                                  threads=1))]
+    assert [p.path for p in parts] == [j[0] for j in jobs]
+    assert parts[1].report is None and "limit" in parts[1].error and parts[1].error.startswith(str(hang))
+    for p in (parts[0], parts[2], parts[3]):
+        with open_trace(p.path) as tr:
+            assert p.error is None and p.report.as_json() == check_trace(tr, SolverSettings(), limit=50).as_json()
+    farm_task._close_child()
