@@ -66,13 +66,12 @@ class Layout:
 
 
 def layout_of(ds, file) -> Layout | None:
-    """The :class:`Layout` of h5py dataset ``ds`` of SafeFile ``file``, or None when h5py should read
+    """The :class:`Layout` of dataset ``ds`` of ``file`` (a SafeFile, or a LiteFile), or None when h5py should read
     it (see the module docstring). Raises H5_FAILURES from HDF5, or TraceFormatError for a chunk
     index that is damaged (``SafeFile.chunk_index``) or holds a chunk larger than any encoder makes."""
     if file.swmr or ds.chunks is None or ds.dtype.hasobject or ds.dtype.itemsize == 0:
         return None
-    plist = ds.id.get_create_plist()
-    ids = [plist.get_filter(k)[0] for k in range(plist.get_nfilters())]
+    ids = file.filter_ids(ds)
     if ids not in ([], [SHUFFLE], [DEFLATE], [LZF], [SHUFFLE, DEFLATE], [SHUFFLE, LZF]):
         return None  # fletcher32, another order, or something new: h5py decodes it
     rows = file.chunk_index(ds)

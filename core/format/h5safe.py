@@ -240,14 +240,7 @@ class SafeFile:
             raise self.fail(name, f"cannot read dataset header (truncated or corrupt?): {exc}") from None
         if shape is None:
             raise self.fail(name, "has no data (null dataspace)")
-        declared = math.prod(shape) * int(itemsize)  # Python ints: no overflow
-        limit = self.size * MAX_EXPANSION + SLACK_BYTES
-        if declared > limit:
-            raise self.fail(name, f"declares {declared:,} bytes of data, more than a {self.size:,}-byte file "
-                                  "can plausibly hold; refused")
-        if whole and declared > MAX_WHOLE_READ:
-            raise self.fail(name, f"declares {declared:,} bytes, over the {MAX_WHOLE_READ:,}-byte limit for "
-                                  "data read whole")
+        check_declared(self, name, shape, itemsize, whole)
         return node
 
     def _shared_dataset(self, name: str):
@@ -327,34 +320,7 @@ class SafeFile:
             raise self.fail(ds.name, f"cannot read stored chunks (truncated or corrupt?): {exc}") from None
         if chunks is None:
             return None
-        index = self.chunk_index(ds)
-        if not len(index):
-            return h.digest()
-        rank = len(chunks)
-        # the place is not hashed, so a world stored identically in two files has one digest
-        sizes, places = index[:, rank + 1], index[:, rank + 2]
-        try:
-            fd = os.open(self.path, os.O_RDONLY)
-            try:
-                h.update(index[:, :rank + 2].tobytes())
-                lo, hi, total = int(places.min()), int((places + sizes).max()), int(sizes.sum())
-                if (places[1:] == places[:-1] + sizes[:-1]).all():  # stored back to back in index order
-                    self._hash_range(h, fd, lo, hi - lo, ds.name)
-                else:
-                    whole = os.pread(fd, hi - lo, lo) if hi - lo <= 2 * total + (64 << 10) else None
-                    for place, n in zip(places.tolist(), sizes.tolist()):
-                        if whole is not None:
-                            data = memoryview(whole)[place - lo:place - lo + n]
-                        else:
-                            data = os.pread(fd, n, place)
-                        if len(data) != n:
-                            raise self._short(ds.name)
-                        h.update(data)
-            finally:
-                os.close(fd)
-        except OSError as exc:
-            raise self.fail(ds.name, f"cannot read stored chunks: {exc.strerror or exc}") from None
-        return h.digest()
+        return digest_chunks(self, h, self.chunk_index(ds), len(chunks), ds.name)
 
     def chunk_index(self, ds) -> np.ndarray:
         """HDF5's index of the stored chunks of chunked dataset ``ds``, checked against the file.
@@ -379,29 +345,12 @@ class SafeFile:
         except (OverflowError, ValueError, TypeError):
             raise self.fail(ds.name, "cannot read stored chunks (truncated or corrupt?): its chunk index holds "
                                      "impossible offsets") from None
-        sizes, places = index[:, rank + 1], index[:, rank + 2]
-        try:
-            size = os.stat(self.path).st_size
-        except OSError as exc:
-            raise self.fail(ds.name, f"cannot read stored chunks: {exc.strerror or exc}") from None
-        bad = (places < 0) | (sizes < 0) | (places > size) | (sizes > size)
-        if bad.any() or (places + sizes > size).any():
-            raise self.fail(ds.name, "cannot read stored chunks (truncated or corrupt?): a chunk lies past "
-                                     "the end of the file")
-        return index
+        return checked_index(self, ds.name, index, rank)
 
-    def _hash_range(self, h, fd: int, start: int, length: int, name: str) -> None:
-        """Feed ``length`` bytes of the file from ``start`` to ``h``, in pieces of at most 4 MiB."""
-        step = 4 << 20
-        for at in range(start, start + length, step):
-            n = min(step, start + length - at)
-            data = os.pread(fd, n, at)
-            if len(data) != n:
-                raise self._short(name)
-            h.update(data)
-
-    def _short(self, name: str) -> TraceFormatError:
-        return self.fail(name, "cannot read stored chunks: the file is shorter than its chunk index says (truncated?)")
+    def filter_ids(self, ds) -> list:
+        """HDF5 filter ids of ``ds``'s pipeline, in order (raises H5_FAILURES)."""
+        plist = ds.id.get_create_plist()
+        return [plist.get_filter(k)[0] for k in range(plist.get_nfilters())]
 
     def read_strings(self, ds) -> tuple[str, ...]:
         """The strings of ``ds``, each escaped and cut by :func:`printable` (they reach reports)."""
@@ -425,6 +374,81 @@ class SafeFile:
             return _attr_value(h5py.h5a.open(obj.id, b))
         except H5_FAILURES as exc:
             raise self.fail(f"{obj.name}@{key}", f"cannot read attribute: {exc}") from None
+
+
+def check_declared(file, name: str, shape: tuple, itemsize: int, whole: bool) -> None:
+    """Refuse a dataset of ``file`` (SafeFile or LiteFile) that declares more data than a file of
+    its size could hold, or, read whole (``whole``), more than :data:`MAX_WHOLE_READ`."""
+    declared = math.prod(shape) * int(itemsize)  # Python ints: no overflow
+    limit = file.size * MAX_EXPANSION + SLACK_BYTES
+    if declared > limit:
+        raise file.fail(name, f"declares {declared:,} bytes of data, more than a {file.size:,}-byte file "
+                              "can plausibly hold; refused")
+    if whole and declared > MAX_WHOLE_READ:
+        raise file.fail(name, f"declares {declared:,} bytes, over the {MAX_WHOLE_READ:,}-byte limit for "
+                              "data read whole")
+
+
+def checked_index(file, name: str, index: np.ndarray, rank: int, size: int | None = None) -> np.ndarray:
+    """``index`` (int64 (K, rank + 3), see ``SafeFile.chunk_index``) after checking that every chunk
+    lies inside ``file`` of ``size`` bytes (None: its size now; sizes and places are each checked
+    against the file size first, so their sum cannot overflow)."""
+    sizes, places = index[:, rank + 1], index[:, rank + 2]
+    try:
+        size = os.stat(file.path).st_size if size is None else size
+    except OSError as exc:
+        raise file.fail(name, f"cannot read stored chunks: {exc.strerror or exc}") from None
+    bad = (places < 0) | (sizes < 0) | (places > size) | (sizes > size)
+    if bad.any() or (places + sizes > size).any():
+        raise file.fail(name, "cannot read stored chunks (truncated or corrupt?): a chunk lies past "
+                              "the end of the file")
+    return index
+
+
+def digest_chunks(file, h, index: np.ndarray, rank: int, name: str) -> bytes:
+    """``h`` (a hashlib object holding the dataset's header) fed the index and the stored bytes of
+    every chunk (``SafeFile.stored_digest``); its digest."""
+    if not len(index):
+        return h.digest()
+    # the place is not hashed, so a world stored identically in two files has one digest
+    sizes, places = index[:, rank + 1], index[:, rank + 2]
+    try:
+        fd = os.open(file.path, os.O_RDONLY)
+        try:
+            h.update(index[:, :rank + 2].tobytes())
+            lo, hi, total = int(places.min()), int((places + sizes).max()), int(sizes.sum())
+            if (places[1:] == places[:-1] + sizes[:-1]).all():  # stored back to back in index order
+                _hash_range(file, h, fd, lo, hi - lo, name)
+            else:
+                whole = os.pread(fd, hi - lo, lo) if hi - lo <= 2 * total + (64 << 10) else None
+                for place, n in zip(places.tolist(), sizes.tolist()):
+                    if whole is not None:
+                        data = memoryview(whole)[place - lo:place - lo + n]
+                    else:
+                        data = os.pread(fd, n, place)
+                    if len(data) != n:
+                        raise _short(file, name)
+                    h.update(data)
+        finally:
+            os.close(fd)
+    except OSError as exc:
+        raise file.fail(name, f"cannot read stored chunks: {exc.strerror or exc}") from None
+    return h.digest()
+
+
+def _hash_range(file, h, fd: int, start: int, length: int, name: str) -> None:
+    """Feed ``length`` bytes of the file from ``start`` to ``h``, in pieces of at most 4 MiB."""
+    step = 4 << 20
+    for at in range(start, start + length, step):
+        n = min(step, start + length - at)
+        data = os.pread(fd, n, at)
+        if len(data) != n:
+            raise _short(file, name)
+        h.update(data)
+
+
+def _short(file, name: str) -> TraceFormatError:
+    return file.fail(name, "cannot read stored chunks: the file is shorter than its chunk index says (truncated?)")
 
 
 def _read_box(ds, sel, dtype: np.dtype, mtype):

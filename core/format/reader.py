@@ -14,7 +14,9 @@ import numpy as np
 from resweep.core.errors import TraceFormatError, printable
 from resweep.core.format.datasets import FRAME_VECTORS, DatasetSpec, spec
 from resweep.core.format.chunk_read import ChunkReader
+from resweep.core.format.h5lite import Unsupported
 from resweep.core.format.h5safe import H5_FAILURES, SafeFile
+from resweep.core.format.lite_file import open_file
 from resweep.core.format.limits import Limits, current
 from resweep.core.world.shapes import IMPLICIT_TYPES, BlockShapes, unit_cube_shapes
 from resweep.core.world.voxel_world import VoxelWorld
@@ -70,11 +72,17 @@ class Trace:
         self.limits = current() if limits is None else limits
         self._worlds = worlds
         self._blocks_key = None
-        self._f = SafeFile(path, swmr=swmr)
+        self._f = open_file(path, swmr=swmr)
         self._chunks = ChunkReader(self._f)
         self.path = self._f.path
         try:
-            self._load()
+            try:
+                self._load()
+            except Unsupported:  # the file uses HDF5 beyond h5lite's subset: read it with h5py
+                self._f.close()
+                self._f = SafeFile(path, swmr=swmr)
+                self._chunks = ChunkReader(self._f)
+                self._load()
         except H5_FAILURES as exc:
             # A corrupt header can fail in an h5py property read outside SafeFile's calls.
             self._f.close()
@@ -649,18 +657,14 @@ def _check(f: SafeFile, ds, sp: DatasetSpec, dims: dict, why: str = ""):
     elif sp.dtypes != ("string",) and sp.dtypes != ("bool",) and str(ds.dtype) not in sp.dtypes:
         raise f.fail(ds.name, f"dtype must be {' or '.join(sp.dtypes)}, found {ds.dtype}")
     want = sp.resolve(dims)
+    shape = ds.shape
+    if len(shape) == len(want) and all(w is None or w == s for w, s in zip(want, shape)):
+        return
     text = "(" + ", ".join(str(w) if w is not None else str(s) for w, s in zip(want, sp.shape)) + \
         ("," if len(want) == 1 else "") + ")"
-    _need_shape(f, ds, want, text + why)
+    raise f.fail(ds.name, f"shape must be {text + why}, found {shape}")
 
 
 def _need_dtype(f: SafeFile, ds, kinds: str, what: str):
     if ds.dtype.kind not in kinds:
         raise f.fail(ds.name, f"dtype must be {what}, found {ds.dtype}")
-
-
-def _need_shape(f: SafeFile, ds, want, text: str):
-    shape = ds.shape
-    ok = len(shape) == len(want) and all(w is None or w == s for w, s in zip(want, shape))
-    if not ok:
-        raise f.fail(ds.name, f"shape must be {text}, found {shape}")

@@ -169,7 +169,8 @@ def run_warm(args) -> list[Row]:
 def run_pertrace(args) -> list[Row]:
     """Where one small trace's time goes, in this process with one solver thread (no profiler):
     opening and validating it (``open_trace`` with a world cache, as a farm child opens it), checking
-    it (limit 0, as ``--summary-only``), closing it; and the floor of plain h5py on the same files
+    it (limit 0, as ``--summary-only``), closing it, through the HDF5 subset reader and through
+    h5py (``RESWEEP_H5LITE=0``) trace by trace in turn; and the floor of plain h5py on the same files
     (open, read every dataset but the world's blocks, close, no checks of ours). Medians over ``--small`` traces after 20
     untimed ones."""
     import glob
@@ -186,6 +187,7 @@ def run_pertrace(args) -> list[Row]:
     numba.set_num_threads(1)
     worlds, settings = WorldCache(), SolverSettings()
     parts = {"open": [], "check": [], "close": [], "h5py": []}
+    via_h5py = {"open": [], "check": [], "close": []}  # the reader with RESWEEP_H5LITE=0, in turn
 
     def plain(path):  # every dataset but the world's blocks, which a farm child decodes once per world
         read = []
@@ -196,20 +198,32 @@ def run_pertrace(args) -> list[Row]:
         with h5py.File(path, "r") as f:
             f.visititems(visit)
         assert len(read) >= 7, (path, len(read))  # ids, half extents, time, start, motion, end, origins
-    for i, path in enumerate(files):
+    def one(path, lite: bool):
+        os.environ["RESWEEP_H5LITE"] = "1" if lite else "0"
         t0 = time.perf_counter()
         tr = open_trace(path, worlds=worlds)
         t1 = time.perf_counter()
         check_trace(tr, settings, limit=0)
         t2 = time.perf_counter()
         tr.close()
-        t3 = time.perf_counter()
-        plain(path)
-        t4 = time.perf_counter()
-        if i >= 20:
-            for k, v in zip(parts, (t1 - t0, t2 - t1, t3 - t2, t4 - t3)):
-                parts[k].append(v * 1e3)
+        return t1 - t0, t2 - t1, time.perf_counter() - t2
+    before = os.environ.get("RESWEEP_H5LITE")
+    try:
+        for i, path in enumerate(files):
+            first = i % 2 == 0  # which path goes first alternates: neither always finds the file cached
+            got = {lite: one(path, lite) for lite in ((True, False) if first else (False, True))}
+            t3 = time.perf_counter()
+            plain(path)
+            t4 = time.perf_counter()
+            if i >= 20:
+                for k, v in zip(parts, (*got[True], t4 - t3)):
+                    parts[k].append(v * 1e3)
+                for k, v in zip(via_h5py, got[False]):
+                    via_h5py[k].append(v * 1e3)
+    finally:
+        os.environ.pop("RESWEEP_H5LITE", None) if before is None else os.environ.__setitem__("RESWEEP_H5LITE", before)
     med = {k: statistics.median(v) for k, v in parts.items()}
+    old = {k: statistics.median(v) for k, v in via_h5py.items()}
     # The same traces as a worker runs them: one batch through its isolated child (start-up and
     # the child's first trace outside the timing), wall ms per trace, and the worker's own CPU.
     from resweep.core.analysis.farm_task import FarmOptions, _close_child, check_batch
@@ -225,6 +239,9 @@ def run_pertrace(args) -> list[Row]:
             f"{batch_ms:.2f} ({worker_cpu:.2f})", "", "bench_farm.py --only pertrace"),
         Row("one small trace in one process: open+validate / check / close (median, ms)",
             f"{med['open']:.2f} / {med['check']:.2f} / {med['close']:.2f}", "", "bench_farm.py --only pertrace"),
+        Row("  the same through h5py (RESWEEP_H5LITE=0, trace by trace in turn with the line above)",
+            f"{old['open']:.2f} / {old['check']:.2f} / {old['close']:.2f}; total "
+            f"{sum(med[k] for k in old) / sum(old.values()):.2f} of it"),
         Row("  plain h5py on the same files: open, read every dataset but the world's blocks, close (median, ms)",
             f"{med['h5py']:.2f}"),
         Row("  open+validate+close over plain h5py (same run; the frames are read by the check)",

@@ -16,6 +16,8 @@ import numpy as np
 from resweep.core.errors import TraceFormatError
 from resweep.core.format.h5safe import SafeFile
 
+from h5_forms import write_plain_attributes
+
 
 def _same(a, b) -> bool:
     if type(a) is not type(b):
@@ -32,16 +34,8 @@ def test_every_kind_of_attribute_reads_as_h5py_reads_it(tmp_path):
     with h5py.File(path, "w") as f:
         g = f.create_group("g")
         for obj in (f, g):
-            obj.attrs["s"] = "h\u00e9llo"
-            obj.attrs["b"] = np.bytes_(b"raw")
-            obj.attrs["i"] = np.int64(3)
-            obj.attrs["u8"] = np.uint8(200)
-            obj.attrs["f"] = 1.5
-            obj.attrs["arr"] = np.arange(4)
+            write_plain_attributes(obj)
             obj.attrs["e"] = h5py.Empty("f8")
-            obj.attrs["sl"] = ["a", "bc"]
-            obj.attrs["bool"] = True
-            obj.attrs["fixed"] = np.array(b"abc", dtype="S5")
             obj.attrs.create("sub", data=np.ones((2, 3)), dtype=np.dtype(("f8", (3,))))
     sf = SafeFile(path)
     try:
