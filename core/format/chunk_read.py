@@ -136,12 +136,8 @@ class Fetched:
             if out[c.request] is None:
                 out[c.request] = np.empty(tuple(b - a for a, b in box), lay.dtype)
             block = decoded[out_at[k]:out_at[k] + sizes[k]].view(lay.dtype).reshape(lay.chunks)
-            src_sel, dst_sel = [], []
-            for (a, b), o, n in zip(box, c.offset, lay.chunks):
-                lo, hi = max(a, o), min(b, o + n)
-                src_sel.append(slice(lo - o, hi - o))
-                dst_sel.append(slice(lo - a, hi - a))
-            out[c.request][tuple(dst_sel)] = block[tuple(src_sel)]
+            src_sel, dst_sel = overlap(box, c.offset, lay.chunks)
+            out[c.request][dst_sel] = block[src_sel]
         return out
 
     def _inflate(self, chunks, raw, lays) -> np.ndarray:
@@ -274,13 +270,28 @@ class ChunkReader:
         return self.fetch(requests, flags).arrays()
 
 
+def overlap(box, offset, chunks) -> tuple:
+    """(selection in the chunk, selection in the box's array) of the part of box ``box`` ((start,
+    stop) per axis) that the chunk of shape ``chunks`` at element offset ``offset`` holds."""
+    src_sel, dst_sel = [], []
+    for (a, b), o, n in zip(box, offset, chunks):
+        lo, hi = max(a, o), min(b, o + n)
+        src_sel.append(slice(lo - o, hi - o))
+        dst_sel.append(slice(lo - a, hi - a))
+    return tuple(src_sel), tuple(dst_sel)
+
+
+def chunk_offsets(box, chunks) -> list:
+    """Element offsets of every chunk (shape ``chunks``) that box ``box`` touches, in index order."""
+    return list(itertools.product(*(range((a // n) * n, b, n) for (a, b), n in zip(box, chunks))))
+
+
 def _chunks_of(lay: Layout, box) -> list | None:
     """Offsets of the stored chunks that box covers (in index order), None if one was never written."""
     if any(b <= a for a, b in box):
         return []
-    ranges = [range((a // n) * n, b, n) for (a, b), n in zip(box, lay.chunks)]
     out = []
-    for off in itertools.product(*ranges):
+    for off in chunk_offsets(box, lay.chunks):
         if off not in lay.index:
             return None
         out.append(off)

@@ -451,6 +451,19 @@ def _short(file, name: str) -> TraceFormatError:
     return file.fail(name, "cannot read stored chunks: the file is shorter than its chunk index says (truncated?)")
 
 
+def unit_box(sel, shape: tuple) -> list | None:
+    """[(start, stop) per axis] that selection ``sel`` picks from an array of ``shape``, stop >=
+    start, when ``sel`` is unit-step slices (or one such slice, or ``()``); else None."""
+    sel = sel if isinstance(sel, tuple) else (sel,)
+    if len(sel) > len(shape) or any(not isinstance(s, slice) or s.step not in (None, 1) for s in sel):
+        return None
+    box = []
+    for s, n in zip(sel + (slice(None),) * (len(shape) - len(sel)), shape):
+        a, b, _ = s.indices(n)
+        box.append((a, max(a, b)))
+    return box
+
+
 def _read_box(ds, sel, dtype: np.dtype, mtype):
     """``ds[sel]`` read with one low-level HDF5 call into a fresh ``dtype`` array, or None when
     ``sel`` is not a tuple of unit-step slices (or one such slice) over a dataset with axes.
@@ -458,13 +471,10 @@ def _read_box(ds, sel, dtype: np.dtype, mtype):
     ``mtype``: the HDF5 memory type, None for the one h5py derives from ``dtype`` (what its own
     read of integer and float data uses). A box with no elements reads nothing."""
     shape = ds.shape
-    if not shape:  # null or scalar dataspace
+    box = unit_box(sel, shape) if shape else None  # no box of a null or scalar dataspace
+    if box is None:
         return None
-    sel = sel if isinstance(sel, tuple) else (sel,)
-    if len(sel) > len(shape) or any(not isinstance(s, slice) or s.step not in (None, 1) for s in sel):
-        return None
-    box = [s.indices(n)[:2] for s, n in zip(sel + (slice(None),) * (len(shape) - len(sel)), shape)]
-    count = tuple(max(0, b - a) for a, b in box)
+    count = tuple(b - a for a, b in box)
     out = np.empty(count, dtype)
     if out.size:
         fspace = ds.id.get_space()

@@ -15,7 +15,6 @@ words SafeFile uses for a failed read. ``RESWEEP_H5LITE=0`` turns this path off.
 from __future__ import annotations
 
 import hashlib
-import itertools
 import math
 import os
 import struct
@@ -25,9 +24,9 @@ import numpy as np
 
 from resweep.core.errors import TraceFormatError, printable
 from resweep.core.format import h5lite
-from resweep.core.format.chunk_read import MAX_STORED_GROWTH
+from resweep.core.format.chunk_read import MAX_STORED_GROWTH, chunk_offsets, overlap
 from resweep.core.format.h5lite import Unsupported
-from resweep.core.format.h5safe import SafeFile, check_declared, checked_index, digest_chunks
+from resweep.core.format.h5safe import SafeFile, check_declared, checked_index, digest_chunks, unit_box
 
 #: What a parse of a damaged or unexpected structure can raise besides Unsupported.
 _PARSE_FAILURES = (struct.error, IndexError, ValueError, KeyError, TypeError, OverflowError, UnicodeError,
@@ -118,29 +117,15 @@ class LiteFile:
 
     # -- objects -----------------------------------------------------------------------------
     def _get(self, name: str):
-        """The object at ``name`` (None when a link on the way is missing)."""
+        """The object at ``name`` (None when there is none); every object was parsed at open."""
         got = self._objects.get(name)
-        if got is not None:
-            return got
-        parts = [p for p in name.split("/") if p]
-        path = "/" + "/".join(parts)
-        got = self._objects.get(path)
-        if got is not None:
-            return got
-        node, walked = self.file, ""
-        for part in parts:
-            walked += "/" + part
-            got = self._objects.get(walked)
-            if got is None:
-                if not isinstance(node, h5lite.Group):
-                    raise Unsupported(f"{walked}: a path through a dataset")
-                addr = node.links.get(part)
-                if addr is None:
-                    return None
-                got = self._objects[walked] = _parsing(lambda: self._parser.object(addr, walked))
-            node = got
-        self._objects[name] = node
-        return node
+        if got is None:
+            parts = [p for p in name.split("/") if p]
+            got = self._objects.get("/" + "/".join(parts))
+            if got is None and any(isinstance(self._objects.get("/" + "/".join(parts[:k])), h5lite.Dataset)
+                                   for k in range(1, len(parts))):
+                raise Unsupported(f"{name}: a path through a dataset")  # h5py says what is wrong
+        return got
 
     def group(self, name: str, required: bool = True):
         node = self._get(name)
@@ -199,7 +184,7 @@ class LiteFile:
     def _read_raw(self, ds, sel) -> np.ndarray:
         """``ds[sel]`` in the stored dtype (h5py's bool as one byte per element)."""
         shape = ds.shape
-        box = _box(sel, shape)
+        box = unit_box(sel, shape)
         if box is None:  # not unit-step slices: the whole dataset, then NumPy's indexing
             return self._read_raw(ds, ())[sel]
         dt = ds.file_dtype
@@ -211,16 +196,10 @@ class LiteFile:
             return out
         index = self._places(ds)
         chunk_bytes = math.prod(ds.chunks) * dt.itemsize
-        ranges = [range((a // n) * n, b, n) for (a, b), n in zip(box, ds.chunks)]
-        for off in itertools.product(*ranges):
-            spot = index.get(off)
-            block = self._chunk(ds, spot, chunk_bytes).reshape(ds.chunks)
-            src_sel, dst_sel = [], []
-            for (a, b), o, n in zip(box, off, ds.chunks):
-                lo, hi = max(a, o), min(b, o + n)
-                src_sel.append(slice(lo - o, hi - o))
-                dst_sel.append(slice(lo - a, hi - a))
-            out[tuple(dst_sel)] = block[tuple(src_sel)]
+        for off in chunk_offsets(box, ds.chunks):
+            block = self._chunk(ds, index.get(off), chunk_bytes).reshape(ds.chunks)
+            src_sel, dst_sel = overlap(box, off, ds.chunks)
+            out[dst_sel] = block[src_sel]
         return out
 
     def _read_flat(self, ds, box, count) -> np.ndarray:
@@ -317,14 +296,3 @@ class LiteFile:
         h.update(repr((ds.shape, ds.dtype.str, ds.chunks, pipeline, ds.fillvalue)).encode())
         return digest_chunks(self, h, self.chunk_index(ds), len(ds.chunks), ds.name)
 
-
-def _box(sel, shape):
-    """((start, stop) per axis) of ``sel`` when it is unit-step slices (or ``()``), else None."""
-    sel = sel if isinstance(sel, tuple) else (sel,)
-    if len(sel) > len(shape) or any(not isinstance(s, slice) or s.step not in (None, 1) for s in sel):
-        return None if shape or sel else ()
-    box = []
-    for s, n in zip(sel + (slice(None),) * (len(shape) - len(sel)), shape):
-        a, b, _ = s.indices(n)
-        box.append((a, max(a, b)))
-    return box
