@@ -73,6 +73,14 @@ class _Checker:
 
 def main(argv=None) -> int:
     from resweep.core.format.vet_child import serve
+    # What every job needs, imported before the first request (numba with the solver modules,
+    # about half a second): a child started ahead of its first job (``farm_task.start_child``)
+    # is then ready when the job comes. The kernel cache folder and thread count are already in
+    # this process's environment (``farm_task._child_setup``).
+    import resweep.core.analysis.farm_task  # noqa: F401
+    import resweep.core.check.stream  # noqa: F401
+    import resweep.core.format.reader  # noqa: F401
+    import resweep.core.world.world_cache  # noqa: F401
     return serve(argv, _Checker())
 
 

@@ -2,8 +2,9 @@
 
 Every engine takes :func:`farm_task.check_batch` calls and hands back futures that call their done
 callbacks once; :meth:`outcome` turns a finished future into ``([PartResult, ...], None)`` or
-``(None, one-line reason)`` (``(None, None)`` when it was cancelled). Dask is imported only when a
-Dask engine is made, so importing the core never loads it.
+``(None, one-line reason)`` (``(None, None)`` when it was cancelled); :meth:`prewarm` is called
+once before the first task (a Dask engine starts every worker's isolated child then). Dask is
+imported only when a Dask engine is made, so importing the core never loads it.
 
 Dask runs each task on some worker; when a worker process dies mid-task, its scheduler hands the
 task to another worker (up to ``distributed.scheduler.allowed-failures`` times, then the trace is
@@ -20,7 +21,7 @@ import time
 import uuid
 from concurrent.futures import CancelledError, ThreadPoolExecutor
 
-from resweep.core.analysis.farm_task import check_batch, unpack
+from resweep.core.analysis.farm_task import check_batch, start_child, unpack
 from resweep.core.errors import ClusterError
 
 
@@ -118,6 +119,10 @@ class ThreadEngine:
         self._stop = threading.Event()
         self.tallies = _Tallies()
 
+    def prewarm(self, options) -> None:
+        """Nothing to do: this process's one child starts with the first job, and no worker
+        waits meanwhile."""
+
     def submit(self, jobs, options, task=None):
         return self._pool.submit(check_batch, jobs, options, self._stop.is_set, _LocalReport(self.tallies, task))
 
@@ -148,6 +153,7 @@ class DaskEngine:
         except ImportError as exc:  # pragma: no cover - a dependency
             raise ClusterError(address or "local", f"dask.distributed is not installed ({exc})") from None
         self._cluster = None
+        self._warm: list = []  # futures of the prewarm tasks (kept so that they are not released early)
         try:
             if address:
                 self.client = Client(address, timeout=timeout)
@@ -175,6 +181,18 @@ class DaskEngine:
         _, (task, traces, rows) = event
         self.tallies.hear(task, traces, rows)
 
+    def prewarm(self, options) -> None:
+        """Ask every worker to start its isolated child now (``farm_task.start_child``: returns at
+        once, the child imports on its own), so no worker starts one only when its first job
+        comes, e.g. while it waited for a big trace's plan. Best effort: a worker that fails or
+        leaves just starts its child with its first job, as without this."""
+        try:
+            workers = list(self.client.scheduler_info().get("workers", {}))
+            self._warm = [self.client.submit(start_child, options, workers=[w], allow_other_workers=False,
+                                             pure=False) for w in workers]
+        except (OSError, TimeoutError, ValueError, RuntimeError):
+            self._warm = []
+
     def submit(self, jobs, options, task=None):
         return self.client.submit(check_batch, jobs, options, _TaskStop(), _EventReport(self._topic, task),
                                   pure=False)
@@ -195,6 +213,7 @@ class DaskEngine:
 
     def close(self):
         client = getattr(self, "client", None)
+        self._warm = []  # released with the client
         if client is not None:
             client.close()
         if self._cluster is not None:

@@ -29,6 +29,7 @@ def run_farm(traces, options, engine, progress=None, missing=()) -> FarmResults:
     for m in missing:
         res.unreadable[m.input] = f"{m.input}: {m.reason}"
     run = _Run(res, options, engine, progress)
+    engine.prewarm(options)
     for batch in plan_batches([_size(t.path) for t in res.traces], engine.workers):
         run.submit([(res.traces[i].path, None) for i in batch])
     try:

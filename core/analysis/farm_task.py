@@ -225,6 +225,36 @@ def _child_setup(options: FarmOptions):
     return env, KERNEL_ADDRESS_SPACE
 
 
+def start_child(options: FarmOptions) -> bool:
+    """Start this process's kept farm child for ``options`` now, if it is not running (a farm's
+    engine asks every worker for this before the first task, see ``DaskEngine.prewarm``), so the
+    child's interpreter and imports (about half a second) overlap the farm's first tasks instead of
+    delaying a worker's first job; a worker idle until a big trace's plan comes back would
+    otherwise start its child only then. Returns at once (the child imports on its own); False
+    when ``RESWEEP_ISOLATE=0`` (jobs run in this process: no child)."""
+    from resweep.core.format.vet import ISOLATE_ENV
+    if os.environ.get(ISOLATE_ENV, "1") == "0":
+        return False
+    with _child_lock:
+        _ensure_child(*_child_setup(options))
+    return True
+
+
+def _ensure_child(env: dict, extra: int) -> None:
+    """The kept child, started (or replaced when it ended or was started otherwise) with ``env``
+    and ``extra`` address space; the caller holds ``_child_lock``."""
+    global _child
+    from resweep.core.analysis import farm_child
+    from resweep.core.format.vet import IsolatedChild
+    if _child is not None and not _child.fits(farm_child.__name__, env, extra):
+        _child.close()
+        _child = None
+    if _child is None:
+        if not _closer:
+            _closer.append(atexit.register(_close_child))
+        _child = IsolatedChild(farm_child.__name__, env, extra)
+
+
 #: Requests written to the kept child ahead of the one it works on: it starts the next job as soon
 #: as it answers one, instead of waiting for this process to read the answer and write again.
 AHEAD = 1
@@ -243,7 +273,7 @@ def _in_child(jobs, options: FarmOptions, should_stop, progress, finished) -> No
     from collections import deque
     from resweep.core.analysis import farm_child
     from resweep.core.errors import TraceFormatError
-    from resweep.core.format.vet import IsolatedChild, Verdict, _answer
+    from resweep.core.format.vet import Verdict, _answer
     env, extra = _child_setup(options)
     heard = None if progress is None else (lambda doc: progress(int(doc["progress"])))
     todo, sent = deque(jobs), deque()  # sent: written to the current child, not yet answered
@@ -252,13 +282,7 @@ def _in_child(jobs, options: FarmOptions, should_stop, progress, finished) -> No
             if not sent:
                 if should_stop is not None and should_stop():
                     return
-                if _child is not None and not _child.fits(farm_child.__name__, env, extra):
-                    _child.close()
-                    _child = None
-                if _child is None:
-                    if not _closer:
-                        _closer.append(atexit.register(_close_child))
-                    _child = IsolatedChild(farm_child.__name__, env, extra)
+                _ensure_child(env, extra)
             while todo and len(sent) <= AHEAD and not (sent and should_stop is not None and should_stop()):
                 job = todo.popleft()
                 _child.send(farm_child.request(*job, options))

@@ -168,6 +168,33 @@ def _child_pids():
     return child.proc.pid if child is not None and child.alive else None
 
 
+def _end_child():
+    from resweep.core.analysis import farm_task
+    farm_task._close_child()
+
+
+def test_prewarm_starts_every_workers_child_and_the_first_job_uses_it(cluster, soak):
+    """Before a farm's first task the engine asks every worker to start its isolated child (so a
+    worker idle until a big trace's plan comes back does not start one only then); the farm's
+    jobs then run in those children, not in new ones."""
+    folder, _ = soak
+    traces, _ = find_traces([str(folder)])
+    engine = DaskEngine(address=cluster.scheduler_address)
+    try:
+        engine.client.run(_end_child)
+        assert set(engine.client.run(_child_pids).values()) == {None}  # no child on any worker
+        opts = FarmOptions(SolverSettings(), limit=LIMIT, range_rows=200, threads=1)
+        engine.prewarm(opts)
+        distributed.wait(engine._warm)
+        assert [f.result() for f in engine._warm] == [True, True]
+        started = engine.client.run(_child_pids)
+        assert len(started) == 2 and None not in started.values()
+        run_farm(traces, opts, engine)
+        assert engine.client.run(_child_pids) == started  # the same children did the jobs
+    finally:
+        engine.close()
+
+
 def _gone(pid: int) -> bool:
     try:
         with open(f"/proc/{pid}/stat") as fh:
