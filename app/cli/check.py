@@ -15,7 +15,7 @@ from resweep.core.format.vet import vet_many
 
 from resweep.app.cli.solver_args import settings_from
 from resweep.app.cli.exits import EXIT_DIVERGED, EXIT_OK, EXIT_USAGE
-from resweep.app.cli.output import Stdout, emit_json, output_problem
+from resweep.app.cli.output import KIND_COLUMN, Stdout, emit_json, output_problem
 
 SHOWN = 20  # divergences listed in the human summary
 
@@ -74,7 +74,7 @@ def print_summary(report, settings, fail_on, out=sys.stdout, shown: int = SHOWN,
     w(f"{report.path}: {report.frames} frames, {report.entities} entities, {report.entity_frames} entity-frames "
       f"re-solved ({settings.describe()}, {settings.precision}, tolerance {settings.tolerance:g}, "
       f"skin {settings.skin:g})\n")
-    kw = max(14, max(len(k) for k in KINDS) + 1)
+    kw = KIND_COLUMN
     w(f"  {'kind':<{kw}}{'severity':<10}{'count':>8}\n")
     for k in KINDS:
         w(f"  {k:<{kw}}{SEVERITY[k]:<10}{report.counts[k]:>8}\n")
@@ -83,7 +83,7 @@ def print_summary(report, settings, fail_on, out=sys.stdout, shown: int = SHOWN,
           "reference end\n")
         for d in report.divergences[:shown]:
             if d.reason is not None:  # an invalid row has no error or reference: say what is wrong
-                w(f"  {d.frame:>7} {d.entity:>8}  {d.kind:<14}{'-':>10}  {d.reason}\n")
+                w(f"  {d.frame:>7} {d.entity:>8}  {d.kind:<{kw}}{'-':>10}  {d.reason}\n")
                 continue
             err = "-" if d.error is None else f"{d.error:.4f}"
             w(f"  {d.frame:>7} {d.entity:>8}  {d.kind:<{kw}}{err:>10}  {_fmt_vec(d.recorded_end)} -> "

@@ -21,7 +21,7 @@ from resweep.core.check.kinds import DEFAULT_FAIL_ON, KINDS, SEVERITY
 
 from resweep.app.cli.solver_args import settings_from
 from resweep.app.cli.exits import EXIT_DIVERGED, EXIT_INTERRUPTED, EXIT_OK, EXIT_USAGE
-from resweep.app.cli.output import emit_json
+from resweep.app.cli.output import KIND_COLUMN, emit_json
 
 WORST = 10  # traces listed under "worst traces" in the human summary
 _GLOB = set("*?[")
@@ -136,9 +136,9 @@ def _print(res, doc, settings, fail_on, args, out=sys.stdout):
     w(f"farm: {doc['traces']} traces, {doc['checked']} checked, {doc['failing']} failing, "
       f"{len(doc['unreadable'])} unreadable; {doc['entity_frames']} entity-frames in {doc['seconds']:.1f} s "
       f"({doc['engine']})\n")
-    w(f"  {'kind':<14}{'severity':<10}{'count':>10}\n")
+    w(f"  {'kind':<{KIND_COLUMN}}{'severity':<10}{'count':>10}\n")
     for k in KINDS:
-        w(f"  {k:<14}{SEVERITY[k]:<10}{doc['counts'][k]:>10}\n")
+        w(f"  {k:<{KIND_COLUMN}}{SEVERITY[k]:<10}{doc['counts'][k]:>10}\n")
     if doc["worst"]:
         w(f"  worst traces ({', '.join(fail_on)}):\n")
         for row in doc["worst"][:WORST]:

@@ -7,7 +7,11 @@ import os
 import sys
 from pathlib import Path
 
+from resweep.core.check.kinds import KINDS
 from resweep.core.format.atomic import write_atomic
+
+#: Width of the kind column of the human summaries (the longest kind name and a space).
+KIND_COLUMN = max(14, max(len(k) for k in KINDS) + 1)
 
 
 class Stdout:

@@ -16,6 +16,7 @@ from resweep.core.analysis.farm_engines import ThreadEngine
 from resweep.core.analysis.farm_inputs import find_traces
 from resweep.core.analysis.farm_run import run_farm
 from resweep.core.analysis.farm_task import FarmOptions
+from resweep.core.check.kinds import KINDS, SEVERITY
 
 
 def _cli(*args):
@@ -58,6 +59,10 @@ def test_summary_only_and_baseline(night, tmp_path):
     assert r.returncode == 1 and "farm: 3 traces, 3 checked" in r.stdout
     base = json.loads((tmp_path / "base.json").read_text())
     assert "traces" not in base and len(base["farm"]["index"]) == 3
+    # The kind table reads back as name, severity, count for every kind (the longest name,
+    # grounded_mismatch, once ran into its severity), with the JSON's counts.
+    table = r.stdout.split("farm: ", 1)[1].splitlines()[2:2 + len(KINDS)]
+    assert [line.split() for line in table] == [[k, SEVERITY[k], str(base["farm"]["counts"][k])] for k in KINDS]
     same = _cli(night, "--workers", "1", "--summary-only", "--baseline", tmp_path / "base.json", "--quiet")
     assert same.returncode == 0, same.stdout + same.stderr   # failing as yesterday, but no worse
     for row in base["farm"]["index"]:                         # yesterday was clean: everything appears
