@@ -15,9 +15,9 @@ from resweep.core.check.kinds import (GROUNDED_MISMATCH, INVALID, KIND_COUNT, MI
 from resweep.core.jit.nb_float import fl
 from resweep.core.jit.nb_jit import hot, kernel
 from resweep.core.check.nb_model_kinds import model_kinds
-from resweep.core.solve.nb_models import solve_model
-from resweep.core.solve.nb_slide import path_enters_solid
-from resweep.core.solve.settings import CLEAR, HIT, STARTED_INSIDE
+from resweep.core.solve.nb_models import blocked_bits, solve_other, step_up
+from resweep.core.solve.nb_slide import path_enters_solid, solve_row
+from resweep.core.solve.settings import CLEAR, HIT, SLIDE, STARTED_INSIDE
 from resweep.core.solve.nb_walk import STACK_ROWS
 from resweep.core.world.nb_world import overlap_depth
 
@@ -170,7 +170,9 @@ def check_row(i, o, start, motion, rec_end, half, world, skin, passes, tol, broa
               ref_end, npass, state, t_out, n_out, v_out, type_out, cand_out, pts, raised_out, climb_out, flags, err):
     """Solve and classify input row ``i`` into output slot ``o`` (arguments as :func:`check_rows`).
     Inlined into the row loop (:func:`check_span`): a call with this many array arguments costs
-    about as much as a short solve."""
+    about as much as a short solve. For the same reason the slide model's solve is inlined here
+    (the other models and step-up are calls, see nb_models), and the model kinds are called only
+    when one can apply (measured: 200 -> 135 ns for a row that hits nothing)."""
     vs = world.voxel_size
     s = row3(start, i)
     m = row3(motion, i)
@@ -185,9 +187,21 @@ def check_row(i, o, start, motion, rec_end, half, world, skin, passes, tol, broa
         climb_out[o] = fl(vs, 0)
         return
     # the model is a runtime code (one compiled kernel for every model), see nb_models
-    run, hit, contact, raised, climb, plain_up, d0 = solve_model(s, m, h, world, skin, passes, broad, stack, mp, o,
-                                                                 ref_end, t_out, n_out, v_out, type_out, cand_out,
-                                                                 pts)
+    if mp.model == SLIDE:
+        run, hit, contact, d0 = solve_row(s, m, h, world, skin, passes, broad, stack, o, ref_end, t_out, n_out,
+                                          v_out, type_out, cand_out, pts)
+        bits = blocked_bits(o, run, n_out) if mp.step > 0 else 0
+    else:
+        run, hit, contact, bits = solve_other(s, m, h, world, skin, mp, o, ref_end, t_out, n_out, v_out, type_out,
+                                              cand_out, pts)
+        d0 = fl(vs, -1)
+    plain_up = ref_end[o, mp.up]
+    raised = False
+    climb = fl(vs, 0)
+    if bits and mp.step > 0:
+        raised, climb, end = step_up(s, m, h, world, skin, passes, broad, stack, mp, o, bits, ref_end, pts)
+        if raised:
+            contact = end
     raised_out[o] = raised
     climb_out[o] = climb
     clear_passes(o, run, t_out, n_out, v_out, type_out, cand_out, vs)
@@ -196,11 +210,12 @@ def check_row(i, o, start, motion, rec_end, half, world, skin, passes, tol, broa
         d0 = overlap_depth(s, h, world)
     f = start_flags(o, d0, hit, tol, state, err)
     f |= classify_end(o, s, m, e, h, hit, run, contact, d0, world, tol, broad, stack, ref_end, n_out, err)
-    mk, g_err, s_err = model_kinds(s, m, e, h, world, skin, tol, mp, ground[i], raised, plain_up)
-    if mk:
-        f |= mk
-        err[o, GROUNDED_MISMATCH] = g_err
-        err[o, STEP_MISMATCH] = s_err
+    if ground[i] >= 0 or mp.step > 0:  # else no model kind applies (and the call is not free)
+        mk, g_err, s_err = model_kinds(s, m, e, h, world, skin, tol, mp, ground[i], raised, plain_up)
+        if mk:
+            f |= mk
+            err[o, GROUNDED_MISMATCH] = g_err
+            err[o, STEP_MISMATCH] = s_err
     flags[o] = f
 
 

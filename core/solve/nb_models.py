@@ -1,10 +1,13 @@
-"""Dispatch of the solver models: one runtime code picks slide, axis or push-out (one compiled
-kernel for all models), then step-up (``nb_step``) for the models that step.
+"""Solver models other than the plain slide, and step-up, as the row kernel calls them.
+
+One runtime code (``ModelParams.model``) picks the model, so one compiled check kernel serves
+every model: the row kernel (``check.nb_rows``) solves the slide model itself (``nb_slide.solve_row``
+inlined: a call per row that passes the world and the outputs cost about as much as a short
+solve), and calls :func:`solve_other` for per-axis clipping and push-out and :func:`step_up` for
+step-up. Those two are compiled on their own (``nb_jit.hot``, no reference counting), not
+inlined: each inlined copy of a model adds tens of seconds to the first compile.
 
 The parameters travel as the named tuple :class:`ModelParams` (built by ``check.rows``).
-:func:`solve_model` is compiled on its own, not inlined into the row loop: inlined, the first
-compile of the check kernel took 65 s of CPU instead of 43 s (measured; the slide-only kernel
-takes 35 s), and without reference counting (``nb_jit.hot``) the call costs little per row.
 """
 from __future__ import annotations
 
@@ -17,7 +20,6 @@ from resweep.core.jit.nb_jit import hot, kernel
 from resweep.core.solve.nb_axis import axis_solve
 from resweep.core.solve.nb_ground import grounded
 from resweep.core.solve.nb_pushout import pushout_solve
-from resweep.core.solve.nb_slide import solve_row
 from resweep.core.solve.nb_step import keeps_raised, raised_try
 from resweep.core.solve.settings import AXIS, PUSHOUT, SLIDE  # noqa: F401  (codes, see settings.MODELS)
 
@@ -78,49 +80,56 @@ def travelled(s, end, m, vs):
     return min(np.sqrt(got / want), fl(vs, 1))
 
 
-@hot
-def solve_model(s, m, h, world, skin, passes, broad, stack, mp, i, ref_end, t_out, n_out, v_out, type_out,
-                cand_out, pts):
-    """Solve row ``i`` with the model of ``mp`` (outputs as ``nb_slide.solve_row``).
+@kernel(inline="always")
+def blocked_bits(i, run, n_out):
+    """Axes the passes 0 .. run - 1 of row ``i`` blocked (a nonzero hit normal component)."""
+    bits = 0
+    for k in range(run):
+        for a in range(3):
+            if n_out[i, k, a] != 0:
+                bits |= 1 << a
+    return bits
 
-    Returns (passes_run, any_hit, contact, raised, climbed, plain_up, start_depth): the end before
-    any skin back-off (float 3-tuple; the models without a back-off, and a kept raised try, give
-    their end), whether the raised try of step-up was kept, the height it climbed (0 when not
-    kept), the up coordinate of the plain solve's end, and the start's overlap depth when the
-    sweep found it on the way (else -1, see ``nb_slide.search_depth``).
+
+@hot
+def solve_other(s, m, h, world, skin, mp, i, ref_end, t_out, n_out, v_out, type_out, cand_out, pts):
+    """Solve row ``i`` with the AXIS or PUSHOUT model of ``mp``, written as one pass (outputs as
+    ``nb_slide.solve_row``; the slide model is solved by the row kernel itself).
+
+    Returns (passes_run, any_hit, end, blocked axes bitmask): the end is final (these models have
+    no separate back-off).
     """
-    up = mp.up
     vs = world.voxel_size
-    d0 = fl(vs, -1)
-    if mp.model == SLIDE:
-        run, hit, contact, d0 = solve_row(s, m, h, world, skin, passes, broad, stack, i, ref_end, t_out, n_out,
-                                          v_out, type_out, cand_out, pts)
-        bits = 0
-        for k in range(run):
-            for a in range(3):
-                if n_out[i, k, a] != 0:
-                    bits |= 1 << a
-    elif mp.model == AXIS:
+    if mp.model == AXIS:
         end, bits, x, y, z, t, cand = axis_solve(s, m, h, world, skin, mp.o0, mp.o1, mp.o2)
         tv = travelled(s, end, m, vs) if bits else fl(vs, 1)
         write_one(i, s, end, tv, stop_normal(bits, m), x, y, z, t, cand, ref_end, t_out, n_out, v_out, type_out,
                   cand_out, pts)
-        run, hit = 1, bits != 0
-        contact = end
-    else:
-        end, pushes, x, y, z, t = pushout_solve(s, m, h, world, skin, mp.substep, mp.iterations, up)
-        # pushed axes: where the end differs from the unobstructed end; normal = push direction
-        back = (s[0] + m[0] - end[0], s[1] + m[1] - end[1], s[2] + m[2] - end[2])
-        bits = 0
-        if pushes:
-            bits = (1 if back[0] != 0 else 0) | (2 if back[1] != 0 else 0) | (4 if back[2] != 0 else 0)
-        write_one(i, s, end, fl(vs, 1), stop_normal(bits, back), x, y, z, t, np.int64(pushes), ref_end,
-                  t_out, n_out, v_out, type_out, cand_out, pts)
-        run, hit = 1, pushes > 0
-        contact = end
-    plain_up = ref_end[i, up]
+        return 1, bits != 0, end, bits
+    end, pushes, x, y, z, t = pushout_solve(s, m, h, world, skin, mp.substep, mp.iterations, mp.up)
+    # pushed axes: where the end differs from the unobstructed end; normal = push direction
+    back = (s[0] + m[0] - end[0], s[1] + m[1] - end[1], s[2] + m[2] - end[2])
+    bits = 0
+    if pushes:
+        bits = (1 if back[0] != 0 else 0) | (2 if back[1] != 0 else 0) | (4 if back[2] != 0 else 0)
+    write_one(i, s, end, fl(vs, 1), stop_normal(bits, back), x, y, z, t, np.int64(pushes), ref_end,
+              t_out, n_out, v_out, type_out, cand_out, pts)
+    return 1, pushes > 0, end, bits
+
+
+@hot
+def step_up(s, m, h, world, skin, passes, broad, stack, mp, i, bits, ref_end, pts):
+    """Step-up of row ``i`` after its plain solve (end in ``ref_end[i]``, ``bits`` the axes it
+    blocked): when the model steps (``mp.step`` > 0, not PUSHOUT), a side axis was blocked and the
+    start is grounded, the raised try (``nb_step.raised_try``), kept when it goes farther
+    (``nb_step.keeps_raised``); a kept try is then the row's end (``ref_end[i]``) and path.
+
+    Returns (kept, height climbed (0 when not kept), the end: the raised try's when kept).
+    """
+    vs = world.voxel_size
+    up = mp.up
+    plain = (ref_end[i, 0], ref_end[i, 1], ref_end[i, 2])
     if mp.step > 0 and mp.model != PUSHOUT and (bits & ~(1 << up)) and grounded(s, h, world, skin, up):
-        plain = (ref_end[i, 0], ref_end[i, 1], ref_end[i, 2])
         end, climbed = raised_try(s, m, h, world, skin, passes, broad, stack, mp)
         if keeps_raised(s, plain, end, up, vs):
             for a in range(3):
@@ -129,5 +138,5 @@ def solve_model(s, m, h, world, skin, passes, broad, stack, mp, i, ref_end, t_ou
             for k in range(1, last + 1):
                 for a in range(3):  # start, the top of the climb (when there is room), end
                     pts[i, k, a] = end[a] if k > 1 or k == last else (s[a] + climbed if a == up else s[a])
-            return run, hit, end, True, climbed, plain_up, d0
-    return run, hit, contact, False, fl(vs, 0), plain_up, d0
+            return True, climbed, end
+    return False, fl(vs, 0), plain
