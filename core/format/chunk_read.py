@@ -30,7 +30,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from resweep.core.format.h5safe import H5_FAILURES
+from resweep.core.format.declared import H5_FAILURES
 
 #: HDF5 filter ids (the filters h5py ships): deflate, shuffle, lzf.
 DEFLATE, SHUFFLE, LZF = 1, 2, 32000

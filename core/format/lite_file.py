@@ -26,7 +26,7 @@ from resweep.core.errors import TraceFormatError, printable
 from resweep.core.format import h5lite
 from resweep.core.format.chunk_read import MAX_STORED_GROWTH, chunk_offsets, overlap
 from resweep.core.format.h5lite import Unsupported
-from resweep.core.format.h5safe import SafeFile, check_declared, checked_index, digest_chunks, unit_box
+from resweep.core.format.declared import check_declared, checked_index, digest_chunks, unit_box
 
 #: What a parse of a damaged or unexpected structure can raise besides Unsupported.
 _PARSE_FAILURES = (struct.error, IndexError, ValueError, KeyError, TypeError, OverflowError, UnicodeError,
@@ -50,6 +50,13 @@ def open_file(path, swmr: bool = False):
             return LiteFile(path)
         except Unsupported:
             pass
+    return safe_file(path, swmr)
+
+
+def safe_file(path, swmr: bool = False):
+    """``SafeFile(path, swmr)``: h5py is imported only here, when a file needs it (a process that
+    reads only files of the subset never loads it)."""
+    from resweep.core.format.h5safe import SafeFile
     return SafeFile(path, swmr=swmr)
 
 

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import hashlib
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -15,12 +16,15 @@ from resweep.core.errors import TraceFormatError, printable
 from resweep.core.format.datasets import FRAME_VECTORS, DatasetSpec, spec
 from resweep.core.format.chunk_read import ChunkReader
 from resweep.core.format.h5lite import Unsupported
-from resweep.core.format.h5safe import H5_FAILURES, SafeFile
-from resweep.core.format.lite_file import open_file
+from resweep.core.format.declared import H5_FAILURES
+from resweep.core.format.lite_file import open_file, safe_file
 from resweep.core.format.limits import Limits, current
 from resweep.core.world.shapes import IMPLICIT_TYPES, BlockShapes, unit_cube_shapes
 from resweep.core.world.voxel_world import VoxelWorld
 from resweep.core.world.world_cache import WorldCache
+
+if TYPE_CHECKING:  # annotations only: h5py loads when a file needs it (lite_file.safe_file)
+    from resweep.core.format.h5safe import SafeFile
 
 FORMAT_NAME = "resweep-trace"
 FORMAT_VERSION = 1
@@ -80,7 +84,7 @@ class Trace:
                 self._load()
             except Unsupported:  # the file uses HDF5 beyond h5lite's subset: read it with h5py
                 self._f.close()
-                self._f = SafeFile(path, swmr=swmr)
+                self._f = safe_file(path, swmr)
                 self._chunks = ChunkReader(self._f)
                 self._load()
         except H5_FAILURES as exc:

@@ -299,3 +299,34 @@ def test_a_trace_written_by_the_writer_opens_through_the_subset(tmp_path):
         or tmp_path / "w.h5"
     with open_trace(path) as tr:
         assert type(tr._f) is LiteFile
+
+
+H5PY_PROBE = """
+import sys
+from resweep.core import SolverSettings, check_trace, open_trace
+with open_trace(sys.argv[1]) as tr:
+    report = check_trace(tr, SolverSettings())
+print(report.entity_frames, 'h5py' in sys.modules)
+"""
+
+
+def test_checking_a_file_of_the_subset_never_loads_h5py(tmp_path):
+    """Loading h5py costs a process about 30 ms (measured); a check of a file the subset reads
+    must not pay it, and a file outside the subset must still be read (through h5py)."""
+    import subprocess
+    import sys
+    newer = tmp_path / "latest.h5"
+    with h5py.File(SAMPLES / "quarry.h5") as src, h5py.File(newer, "w", libver="latest") as dst:
+        for key, value in src.attrs.items():
+            dst.attrs[key] = value
+        for name in src:
+            src.copy(src[name], dst, name=name)
+    got = {}
+    for path in (SAMPLES / "quarry.h5", newer):
+        r = subprocess.run([sys.executable, "-c", H5PY_PROBE, str(path)], capture_output=True, text=True,
+                           timeout=300)
+        assert r.returncode == 0, r.stderr
+        rows, loaded = r.stdout.split()
+        got[path.name] = (int(rows), loaded)
+    assert got["quarry.h5"][1] == "False" and got["latest.h5"][1] == "True"
+    assert got["quarry.h5"][0] == got["latest.h5"][0] > 0
