@@ -499,7 +499,23 @@ def test_settings_layout_and_recent_files_are_remembered(qtbot, store):
     assert again.recent_menu.actions()[0].text().endswith(str(DEMO.resolve()))
 
 
-def test_cancel_and_close_stop_the_background_solve(qtbot, window, long_trace):
+def test_cancel_and_close_stop_the_background_solve(qtbot, window, long_trace, monkeypatch):
+    # The solve waits after its first block until Escape has been pressed: on a quiet machine the
+    # whole trace can otherwise be solved before the key press arrives, and nothing is left to cancel.
+    import threading
+    from resweep.app.viewer import worker as worker_module
+    pressed = threading.Event()
+    real = worker_module.resolve_trace
+    reports = []
+
+    def held(path, settings, on_rows, on_progress=None, should_stop=None, **kw):
+        def progress(done, total):
+            on_progress(done, total)
+            pressed.wait(30)
+        reports.append(real(path, settings, on_rows, progress, should_stop=should_stop, **kw))
+        return reports[-1]
+
+    monkeypatch.setattr(worker_module, "resolve_trace", held)
     with qtbot.waitSignal(window.worker.loaded, timeout=LOAD_TIMEOUT):
         window.open_path(long_trace)
     job = window.worker._solve
@@ -507,12 +523,14 @@ def test_cancel_and_close_stop_the_background_solve(qtbot, window, long_trace):
     with qtbot.waitSignal(window.worker.progress, timeout=LOAD_TIMEOUT):
         pass
     press(qtbot, window, Qt.Key.Key_Escape)
+    pressed.set()
     assert not window.worker.is_busy()
     solved = int(window.flags.solved.sum())
     qtbot.wait(300)
     assert int(window.flags.solved.sum()) == solved < window.flags.frame_count  # late blocks dropped
     job.thread.join(30)
     assert not job.thread.is_alive()
+    assert len(reports) == 1 and reports[0].cancelled  # the solve itself stopped, not only its signals
     # Closing while a solve runs joins its thread.
     window.settings_panel.passes.setValue(2)
     job = window.worker._solve
