@@ -19,7 +19,19 @@ import h5py
 import numpy as np
 
 from resweep.core.errors import TraceFormatError, printable
-from resweep.core.format.declared import ALLOWED_FILTERS, H5_FAILURES, check_declared, checked_index, digest_chunks, unit_box
+from resweep.core.format.declared import (ALLOWED_FILTERS, H5_FAILURES, NO_PLUGINS_ENV, check_declared,
+                                          checked_index, digest_chunks, unit_box)
+
+
+def _clear_plugin_path() -> None:
+    """Empty HDF5's plugin search path (see ``declared.NO_PLUGINS_ENV``)."""
+    h5pl = h5py.h5pl
+    for _ in range(h5pl.size()):
+        h5pl.remove(0)
+
+
+if os.environ.get(NO_PLUGINS_ENV) == "1":
+    _clear_plugin_path()
 
 _MAX_LINK_HOPS = 16
 

@@ -10,7 +10,8 @@ fork of this one) with
   before each file), plus a wall-clock timeout per file in case the child blocks without using CPU;
 - HDF5 dynamic filter plugins disabled: ``HDF5_PLUGIN_PATH`` and ``HDF5_VOL_CONNECTOR`` removed
   from its environment, ``HDF5_PLUGIN_PRELOAD=::`` (HDF5's switch that turns plugin loading off)
-  set, and h5py's plugin search path cleared;
+  set, and h5py's plugin search path cleared as soon as h5py loads (``declared.NO_PLUGINS_ENV``;
+  a child that reads only files of the h5py-free subset never loads h5py);
 - a lean import set (h5py, numpy, ``resweep.core.format``; never numba or the viewer).
 
 A child that dies by a signal or hits a limit becomes one :class:`TraceFormatError` naming the file
@@ -38,6 +39,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from resweep.core.errors import TraceFormatError, printable
+from resweep.core.format.declared import NO_PLUGINS_ENV
 from resweep.core.format.limits import ENV as LIMITS_ENV
 from resweep.core.format.limits import current
 from resweep.core.jit.folders import user_cache_root
@@ -164,7 +166,7 @@ class IsolatedChild:
 
     def __init__(self, module: str = "resweep.core.format.vet_child", env: dict | None = None, extra_mem: int = 0):
         full = {k: v for k, v in os.environ.items() if k not in _DROP_ENV}
-        full.update(HDF5_PLUGIN_PRELOAD="::", OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", MKL_NUM_THREADS="1",
+        full.update(HDF5_PLUGIN_PRELOAD="::", **{NO_PLUGINS_ENV: "1"}, OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", MKL_NUM_THREADS="1",
                     PYTHONDONTWRITEBYTECODE="1", **(env or {}))
         self.module, self.env, self.extra_mem = module, dict(env or {}), int(extra_mem)
         self.cpu, self.mem = int(os.environ.get(CPU_ENV, CPU_SECONDS)), address_space_limit() + self.extra_mem

@@ -7,7 +7,8 @@ reading the next: ``{"ok": true}`` or ``{"ok": false, "dataset": ..., "reason": 
 child's own peak resident bytes so far; it ends when its input closes. Each
 path gets ``CPU_SECONDS`` of CPU time of its own (the soft limit is moved on before each one),
 so the parent knows which path a child that died was on. Worlds stored identically are decoded
-once (a soak folder's traces share one). Imports only numpy, h5py and resweep.core.format.
+once (a soak folder's traces share one). Imports only numpy and resweep.core.format (h5py too,
+for a file outside the h5py-free subset, with HDF5's plugin search path cleared: see vet.py).
 """
 from __future__ import annotations
 
@@ -29,15 +30,6 @@ def _cpu_for_next(cpu: int) -> None:
     _, hard = resource.getrlimit(resource.RLIMIT_CPU)
     soft = now + cpu if hard == resource.RLIM_INFINITY else min(now + cpu, hard)
     resource.setrlimit(resource.RLIMIT_CPU, (soft, hard))
-
-
-def _no_plugins() -> None:
-    """Clear HDF5's plugin search path (the parent also set ``HDF5_PLUGIN_PRELOAD=::``, HDF5's
-    documented switch that disables dynamic plugin loading, before the library loaded)."""
-    import h5py
-    h5pl = h5py.h5pl
-    for _ in range(h5pl.size()):
-        h5pl.remove(0)
 
 
 def validate(path: str, worlds=None) -> dict:
@@ -99,7 +91,6 @@ def serve(argv, answer) -> int:
     argv = sys.argv[1:] if argv is None else argv
     cpu, _mem = int(argv[0]), int(argv[1])
     _limit_self(_mem)
-    _no_plugins()
     answer.reset()
     for line in iter(sys.stdin.readline, ""):
         if not line.strip():

@@ -187,3 +187,41 @@ def test_one_child_validates_a_batch_and_a_hang_in_it_costs_only_that_file(good,
     kept = vetmod._kept
     vetmod._kept = None
     kept.close()
+
+
+PLUGIN_PROBE = """
+import h5py
+before = h5py.h5pl.size()
+import resweep.core.format.h5safe
+print(before, h5py.h5pl.size())
+"""
+
+
+@pytest.mark.parametrize("switch", ["1", None])
+def test_children_clear_hdf5_plugin_path_as_h5py_loads(tmp_path, monkeypatch, switch):
+    """HDF5 starts with one plugin folder on its search path (its default, or HDF5_PLUGIN_PATH);
+    with the children's switch set, loading the h5py reader empties it before any file is opened."""
+    import os
+    import subprocess
+    import sys
+    from resweep.core.format.declared import NO_PLUGINS_ENV
+    env = {k: v for k, v in os.environ.items() if k != NO_PLUGINS_ENV}
+    env["HDF5_PLUGIN_PATH"] = str(tmp_path)
+    if switch:
+        env[NO_PLUGINS_ENV] = switch
+    r = subprocess.run([sys.executable, "-c", PLUGIN_PROBE], env=env, capture_output=True, text=True, timeout=120)
+    assert r.returncode == 0, r.stderr
+    before, after = map(int, r.stdout.split())
+    assert before >= 1
+    assert after == (0 if switch else before)
+
+
+def test_isolated_children_get_both_plugin_switches(monkeypatch):
+    from resweep.core.format.declared import NO_PLUGINS_ENV
+    child = vetmod.IsolatedChild()
+    try:
+        with open(f"/proc/{child.proc.pid}/environ", "rb") as fh:
+            env = dict(item.split(b"=", 1) for item in fh.read().split(b"\0") if b"=" in item)
+    finally:
+        child.close()
+    assert env[NO_PLUGINS_ENV.encode()] == b"1" and env[b"HDF5_PLUGIN_PRELOAD"] == b"::"
