@@ -4,7 +4,8 @@ process that reads only files of h5lite's subset never pays for loading h5py (ab
 
 Here: the filters allowed, the limit on the data a dataset may declare for the size of its file,
 the check that every stored chunk lies inside the file, the digest of a dataset's stored chunks,
-unit-step selections as boxes, and the exceptions h5py raises on a damaged file.
+unit-step selections as boxes, the exceptions h5py raises on a damaged file, and the switch that
+turns HDF5's plugins off in the isolated children that open unvetted files.
 """
 from __future__ import annotations
 
@@ -26,14 +27,14 @@ MAX_WHOLE_READ = 8 << 30
 #: ValueError or RuntimeError (e.g. a damaged symbol-table node in a link or attribute lookup),
 #: and a damaged header can surface as TypeError, IndexError or a decoding error. Every h5py call
 #: on an untrusted file goes through one of these handlers, so each becomes one line naming the file.
+H5_FAILURES = (OSError, KeyError, ValueError, TypeError, RuntimeError, IndexError, AttributeError,
+               OverflowError, SystemError, UnicodeError)
 #: Environment switch of the isolated children that open unvetted files (set by ``vet.IsolatedChild``):
 #: when it is "1", ``h5safe`` clears HDF5's plugin search path as it loads h5py, before any file is
 #: opened there. The children also get ``HDF5_PLUGIN_PRELOAD=::``, HDF5's own switch that turns
 #: plugin loading off; this is the second lock. (A child that reads only files of the h5py-free
 #: subset never loads h5py at all.)
 NO_PLUGINS_ENV = "RESWEEP_NO_HDF5_PLUGINS"
-H5_FAILURES = (OSError, KeyError, ValueError, TypeError, RuntimeError, IndexError, AttributeError,
-               OverflowError, SystemError, UnicodeError)
 
 
 def check_declared(file, name: str, shape: tuple, itemsize: int, whole: bool) -> None:
