@@ -166,8 +166,10 @@ class IsolatedChild:
 
     def __init__(self, module: str = "resweep.core.format.vet_child", env: dict | None = None, extra_mem: int = 0):
         full = {k: v for k, v in os.environ.items() if k not in _DROP_ENV}
-        full.update(HDF5_PLUGIN_PRELOAD="::", **{NO_PLUGINS_ENV: "1"}, OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", MKL_NUM_THREADS="1",
-                    PYTHONDONTWRITEBYTECODE="1", **(env or {}))
+        full.update(HDF5_PLUGIN_PRELOAD="::", OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", MKL_NUM_THREADS="1",
+                    PYTHONDONTWRITEBYTECODE="1")
+        full[NO_PLUGINS_ENV] = "1"
+        full.update(env or {})
         self.module, self.env, self.extra_mem = module, dict(env or {}), int(extra_mem)
         self.cpu, self.mem = int(os.environ.get(CPU_ENV, CPU_SECONDS)), address_space_limit() + self.extra_mem
         self.limits = os.environ.get(LIMITS_ENV, "")

@@ -2,6 +2,10 @@
 bounded work, limits that name how to raise them, and the isolated first open."""
 from __future__ import annotations
 
+import os
+import subprocess
+import sys
+
 import numpy as np
 import pytest
 
@@ -9,6 +13,7 @@ from resweep.core import SolverSettings, TraceFormatError, VoxelWorld, open_trac
 from resweep.core.check.rows import overlap_depths
 from resweep.core.errors import printable
 from resweep.core.format import vet as vetmod
+from resweep.core.format.declared import NO_PLUGINS_ENV
 from resweep.core.format.limits import Limits
 from resweep.core.check.kinds import KINDS
 from resweep.core.solve.settings import HIT, STARTED_INSIDE
@@ -198,13 +203,9 @@ print(before, h5py.h5pl.size())
 
 
 @pytest.mark.parametrize("switch", ["1", None])
-def test_children_clear_hdf5_plugin_path_as_h5py_loads(tmp_path, monkeypatch, switch):
+def test_children_clear_hdf5_plugin_path_as_h5py_loads(tmp_path, switch):
     """HDF5 starts with one plugin folder on its search path (its default, or HDF5_PLUGIN_PATH);
     with the children's switch set, loading the h5py reader empties it before any file is opened."""
-    import os
-    import subprocess
-    import sys
-    from resweep.core.format.declared import NO_PLUGINS_ENV
     env = {k: v for k, v in os.environ.items() if k != NO_PLUGINS_ENV}
     env["HDF5_PLUGIN_PATH"] = str(tmp_path)
     if switch:
@@ -216,8 +217,7 @@ def test_children_clear_hdf5_plugin_path_as_h5py_loads(tmp_path, monkeypatch, sw
     assert after == (0 if switch else before)
 
 
-def test_isolated_children_get_both_plugin_switches(monkeypatch):
-    from resweep.core.format.declared import NO_PLUGINS_ENV
+def test_isolated_children_get_both_plugin_switches():
     child = vetmod.IsolatedChild()
     try:
         with open(f"/proc/{child.proc.pid}/environ", "rb") as fh:

@@ -12,6 +12,8 @@ forms outside the subset must be left to h5py (``Unsupported``), and damaged fil
 from __future__ import annotations
 
 import random
+import subprocess
+import sys
 
 import h5py
 import numpy as np
@@ -313,8 +315,6 @@ print(report.entity_frames, 'h5py' in sys.modules)
 def test_checking_a_file_of_the_subset_never_loads_h5py(tmp_path):
     """Loading h5py costs a process about 30 ms (measured); a check of a file the subset reads
     must not pay it, and a file outside the subset must still be read (through h5py)."""
-    import subprocess
-    import sys
     newer = tmp_path / "latest.h5"
     with h5py.File(SAMPLES / "quarry.h5") as src, h5py.File(newer, "w", libver="latest") as dst:
         for key, value in src.attrs.items():

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import re
 import shlex
+import threading
 
 import numpy as np
 import pytest
@@ -16,6 +17,7 @@ from PyQt6.QtWidgets import QApplication, QMessageBox
 
 from conftest import DEMO, LOAD_TIMEOUT, make_window, open_and_wait
 from resweep.app.cli.main import build_parser
+from resweep.app.viewer import worker as worker_module
 from resweep.core.check.kinds import KINDS
 from resweep.core.check.stream import check_trace
 from resweep.core.errors import TraceFormatError
@@ -502,8 +504,6 @@ def test_settings_layout_and_recent_files_are_remembered(qtbot, store):
 def test_cancel_and_close_stop_the_background_solve(qtbot, window, long_trace, monkeypatch):
     # The solve waits after its first block until Escape has been pressed: on a quiet machine the
     # whole trace can otherwise be solved before the key press arrives, and nothing is left to cancel.
-    import threading
-    from resweep.app.viewer import worker as worker_module
     pressed = threading.Event()
     real = worker_module.resolve_trace
     reports = []
