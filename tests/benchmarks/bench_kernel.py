@@ -90,8 +90,8 @@ def run(args) -> list[Row]:
             Row("ratio kernel (every output) / tight C per core", f"{a_rate / c_rate:.2f}")]
 
 
-def parser():
-    ap = common_args(__doc__.splitlines()[0])
+def parser(description: str = __doc__.splitlines()[0]):
+    ap = common_args(description)
     ap.add_argument("--entities", type=int, default=200)
     ap.add_argument("--frames", type=int, default=5000)
     ap.set_defaults(repeat=5)
