@@ -51,27 +51,22 @@ STEPS = (
         ("solve/nb_narrow.py", "        eax = entry_axes(p, r, h, v, bb, vs, te, d)\n", "        pass\n")]),
 )
 
+#: One child: bench_kernel's own rows and timing, with the kernel its ``PYTHONPATH`` gives.
 CHILD = """
-import statistics, sys, time
+import statistics, sys
+sys.path.insert(0, %r)
 import numba, numpy as np
-from resweep.core import SolverSettings, open_trace
-from resweep.core.check.rows import flag_rows, warm_up
+from resweep.core import SolverSettings
+from resweep.core.check.rows import warm_up
+from bench_kernel import kernel_cpu, trace_rows
 warm_up("float64")
-with open_trace(sys.argv[1]) as tr:
-    blk = tr.frames(0, tr.frame_count)
-    world = tr.world()
-fr, col = np.nonzero(blk.active)
-rows = [np.ascontiguousarray(a[fr, col], np.float64) for a in (blk.start, blk.motion, blk.end, blk.half)]
+world, rows = trace_rows(sys.argv[1])
 flags = np.zeros(len(rows[0]), np.int32)
 numba.set_num_threads(1)
-flag_rows(world, *rows, SolverSettings(), flags)
-times = []
-for _ in range(int(sys.argv[2])):
-    c0 = time.process_time()
-    flag_rows(world, *rows, SolverSettings(), flags)
-    times.append(time.process_time() - c0)
+kernel_cpu(world, rows, flags, SolverSettings())
+times = [kernel_cpu(world, rows, flags, SolverSettings()) for _ in range(int(sys.argv[2]))]
 print(len(rows[0]), statistics.median(times))
-"""
+""" % str(Path(__file__).resolve().parent)
 
 
 def variant(workdir: Path, k: int) -> dict | None:
